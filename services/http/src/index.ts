@@ -1,2 +1,3 @@
 export {};
 export * from './sse.ts';
+export * from './metrics.ts';
