@@ -1,1 +1,2 @@
 export * from './bus.ts';
+export * from './memory.ts';
