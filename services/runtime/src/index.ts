@@ -1,1 +1,3 @@
-export {};
+export * from './conflate.ts';
+export * from './latency.ts';
+export * from './runner.ts';

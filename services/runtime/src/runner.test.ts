@@ -1,0 +1,213 @@
+import { describe, expect, it } from 'vitest';
+import { MemoryBus } from '@keelson/bus';
+import type { BusRecord } from '@keelson/bus';
+import type { AlertMsg, ExposureMsg, RejectedMsg } from '@keelson/shared-types';
+import { EngineRunner, type RunnerEngine, type Signal } from './runner.ts';
+
+// A stand-in engine whose outputs are fully determined by its inputs, so the runner's own rules
+// (ordering, coalescing, conflation, acknowledgement) can be checked exactly.
+class FakeEngine implements RunnerEngine {
+  ingested: string[] = [];
+  decays = 0;
+  private ex = new Map<string, ExposureMsg>();
+  private alerts: Signal[] = [];
+  private rejected: RejectedMsg[] = [];
+  ingest(raw: string, source: string) {
+    this.ingested.push(raw);
+    let m: { type?: string; underlying?: string; price?: number; ts?: string; boom?: boolean };
+    try {
+      m = JSON.parse(raw);
+    } catch {
+      this.rejected.push({ type: 'rejected', reason: 'invalid JSON', source, raw, ts: '2026-03-02T14:30:00Z' });
+      return 'rejected' as const;
+    }
+    if (m.boom) throw new Error('kaboom');
+    if (m.type === 'spot' && m.underlying) {
+      const e = exposure(`underlying=${m.underlying}`, m.underlying, m.price ?? 0);
+      this.ex.set(e.nodeKey, e);
+      this.ex.set('firm', exposure('firm', undefined, m.price ?? 0));
+      if ((m.price ?? 0) > 100) this.alerts.push(alert(m.underlying));
+    }
+    return 'accepted' as const;
+  }
+  revalueAll() {
+    this.decays++;
+  }
+  drain() {
+    const out = { exposures: [...this.ex.values()], alerts: this.alerts, rejected: this.rejected };
+    this.ex = new Map();
+    this.alerts = [];
+    this.rejected = [];
+    return out;
+  }
+  snapshot() {
+    return [];
+  }
+}
+
+function exposure(nodeKey: string, underlying: string | undefined, pv: number): ExposureMsg {
+  return {
+    type: 'exposure',
+    nodeKey,
+    node: underlying ? { underlying } : {},
+    currency: 'USD',
+    asOf: '2026-03-02T14:30:00Z',
+    pv,
+    pnl: 0,
+    delta: underlying ? 1 : null,
+    cashDelta: 0,
+    gamma: underlying ? 0 : null,
+    cashGamma: 0,
+    vega: 0,
+    theta: 0,
+    rho: 0,
+    positions: 1,
+    unpriced: {},
+    stale: false,
+  };
+}
+function alert(u: string): AlertMsg {
+  return {
+    type: 'alert',
+    alertId: `L-${u}#1`,
+    limitId: `L-${u}`,
+    nodeKey: `underlying=${u}`,
+    metric: 'delta',
+    value: 1,
+    bound: 1,
+    utilization: 1,
+    severity: 'breach',
+    previous: 'ok',
+    state: 'raised',
+    ts: '2026-03-02T14:30:00Z',
+  };
+}
+const spot = (u: string, price: number, tsMs: number) => ({
+  key: u,
+  value: JSON.stringify({ type: 'spot', underlying: u, price, ts: new Date(tsMs).toISOString() }),
+});
+
+function collect(bus: MemoryBus, topics: string[]) {
+  const got: BusRecord[] = [];
+  void bus.subscribe(topics, async (b) => void got.push(...b));
+  return got;
+}
+
+describe('EngineRunner', () => {
+  it('conflates spots, publishes alerts at once and coalesces exposures per node within the interval', async () => {
+    let now = 1_000_000;
+    const bus = new MemoryBus();
+    const engine = new FakeEngine();
+    const out = collect(bus, ['exposures', 'alerts', 'rejected']);
+    const observed: string[] = [];
+    const runner = new EngineRunner({
+      engine,
+      bus,
+      publishIntervalMs: 100,
+      now: () => now,
+      observer: { input: (t, o) => observed.push(`${t}:${o}`) },
+    });
+    await runner.start();
+    // First batch: the flush is due at once (nothing published yet).
+    await bus.publish('spots', [spot('AX', 10, now - 5), spot('AX', 11, now - 4), spot('AX', 101, now - 3)]);
+    await bus.idle();
+    expect(engine.ingested.length).toBe(1); // only the newest AX spot was applied
+    expect(observed).toEqual(['spot:accepted', 'spot:accepted']); // the two conflated ones still count
+    expect(out.filter((r) => r.topic === 'alerts').map((r) => r.key)).toEqual(['L-AX']);
+    expect(out.filter((r) => r.topic === 'exposures').map((r) => r.key)).toEqual(['underlying=AX', 'firm']);
+    // Two more batches inside the interval: held, then one publication with the latest values.
+    now += 10;
+    await bus.publish('spots', [spot('AX', 20, now)]);
+    await bus.idle();
+    now += 10;
+    await bus.publish('spots', [spot('BY', 30, now)]);
+    await bus.idle();
+    expect(out.filter((r) => r.topic === 'exposures')).toHaveLength(2);
+    now += 100;
+    await runner.flushNow();
+    await bus.idle();
+    const second = out.filter((r) => r.topic === 'exposures').slice(2);
+    expect(second.map((r) => [r.key, JSON.parse(r.value).pv])).toEqual([
+      ['underlying=AX', 20],
+      ['underlying=BY', 30],
+      ['firm', 30],
+    ]);
+    expect(runner.stats()).toMatchObject({ records: 5, spots: 5, conflated: 2, accepted: 5, alertsPublished: 1 });
+    // Tick-to-publish: the first batch's ticks waited 3 to 5 ms, the later ones 110 and 100 ms.
+    expect(runner.latency.percentiles([0, 1])).toEqual([3, 110]);
+    await runner.stop();
+    await bus.close();
+  });
+
+  it('resolves the batch only after alerts and rejected are acknowledged', async () => {
+    const bus = new MemoryBus({ queueCapacity: 1 });
+    const engine = new FakeEngine();
+    let releaseAlerts!: () => void;
+    const gate = new Promise<void>((r) => (releaseAlerts = r));
+    await bus.subscribe(['alerts'], async () => gate); // a slow alerts consumer
+    const runner = new EngineRunner({ engine, bus, publishIntervalMs: 0 });
+    const handled = runner.handle([
+      { topic: 'spots', key: 'AX', value: JSON.stringify({ type: 'spot', underlying: 'AX', price: 150, ts: '2026-03-02T14:30:00Z' }) },
+      { topic: 'spots', key: 'BY', value: JSON.stringify({ type: 'spot', underlying: 'BY', price: 150, ts: '2026-03-02T14:30:00Z' }) },
+    ]);
+    let done = false;
+    void handled.then(() => (done = true));
+    await new Promise((r) => setTimeout(r, 20));
+    expect(done).toBe(false); // two alerts, room for one: the publish is not acknowledged yet
+    releaseAlerts();
+    await handled;
+    expect(done).toBe(true);
+    await bus.close();
+  });
+
+  it('dead-letters a record the engine throws on and carries on with the batch', async () => {
+    const bus = new MemoryBus();
+    const engine = new FakeEngine();
+    const out = collect(bus, ['rejected']);
+    const errors: string[] = [];
+    const runner = new EngineRunner({ engine, bus, onError: (e, ctx) => errors.push(`${ctx}: ${String(e)}`) });
+    await runner.handle([
+      { topic: 'trades', key: 'AX', value: '{"boom":true}', partition: 2, offset: '41' },
+      { topic: 'trades', key: 'AX', value: 'garbage', partition: 2, offset: '42' },
+      { topic: 'spots', key: 'AX', value: JSON.stringify({ type: 'spot', underlying: 'AX', price: 1, ts: '2026-03-02T14:30:00Z' }) },
+    ]);
+    await bus.idle();
+    const dead = out.map((r) => JSON.parse(r.value));
+    expect(dead.map((d) => [d.source, d.reason])).toEqual([
+      ['trades partition 2 offset 42', 'invalid JSON'],
+      ['trades partition 2 offset 41', 'internal error while applying: kaboom'],
+    ]);
+    expect(errors).toEqual(['ingest trades partition 2 offset 41: Error: kaboom']);
+    expect(engine.ingested).toHaveLength(3);
+    await bus.close();
+  });
+
+  it('with holdForExposures resolves a batch only after the flush that carries it', async () => {
+    let now = 0;
+    const bus = new MemoryBus();
+    const engine = new FakeEngine();
+    const runner = new EngineRunner({ engine, bus, publishIntervalMs: 30, holdForExposures: true, now: () => now });
+    await runner.handle([{ topic: 'spots', key: 'AX', value: spot('AX', 1, 0).value }]); // due at once
+    now = 5;
+    let done = false;
+    const p = runner.handle([{ topic: 'spots', key: 'AX', value: spot('AX', 2, 5).value }]).then(() => (done = true));
+    await new Promise((r) => setTimeout(r, 5));
+    expect(done).toBe(false);
+    now = 40;
+    await p; // the flush timer (25 ms of real time) publishes and releases it
+    expect(runner.stats().exposuresPublished).toBe(4);
+    await bus.close();
+  });
+
+  it('runs the decay clock: revalueAll on its interval', async () => {
+    const bus = new MemoryBus();
+    const engine = new FakeEngine();
+    const runner = new EngineRunner({ engine, bus, decayIntervalMs: 10 });
+    await runner.start();
+    await new Promise((r) => setTimeout(r, 55));
+    await runner.stop();
+    expect(engine.decays).toBeGreaterThanOrEqual(3);
+    expect(runner.stats().decayRuns).toBe(engine.decays);
+    await bus.close();
+  });
+});

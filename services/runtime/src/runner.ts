@@ -1,0 +1,346 @@
+// The engine over a bus, transport-agnostic: the embedded default drives it over MemoryBus and the
+// Kafka runner over KafkaBus, so a behaviour proven in memory is the behaviour on the broker.
+//
+// Per batch: plan (conflate spots), ingest, drain, publish. Events that risk control must see
+// (alerts, stale-feed, rejected) are published before the handler resolves, in the order the
+// engine produced them: a transport that commits after the handler therefore commits no input
+// whose events are not on the bus. Exposures are latest-wins state, coalesced per node over the
+// publish interval: by default the handler does not wait for the next exposure flush (waiting
+// would add up to one interval to every later tick, because no further batch is delivered while a
+// handler runs); a lost pending flush is repaired by the next change of the node, the decay clock,
+// or the full snapshot a restarted engine publishes after rebuilding. `holdForExposures: true`
+// makes the handler wait for the flush that carries its exposures (commit strictly after them).
+import { INPUT_TOPICS, TOPICS } from '@keelson/shared-types';
+import type { AlertMsg, ExposureMsg, RejectedMsg, StaleFeedMsg } from '@keelson/shared-types';
+import type { Bus, BusRecord, OutRecord } from '@keelson/bus';
+import { planBatch } from './conflate.ts';
+import { LatencyWindow } from './latency.ts';
+
+export type Signal = AlertMsg | StaleFeedMsg;
+export type IngestOutcome = 'accepted' | 'duplicate' | 'rejected';
+
+/** The part of RiskEngine the runner drives (structural, so tests can hand in a fake). */
+export interface RunnerEngine {
+  ingest(raw: string, source: string): IngestOutcome;
+  revalueAll(): void;
+  drain(): { exposures: ExposureMsg[]; alerts: Signal[]; rejected: RejectedMsg[] };
+  snapshot(): ExposureMsg[];
+}
+
+/** The part of KeelsonMetrics the runner feeds. */
+export interface RunnerMetrics {
+  tickToPublish(spotTsMs: number, publishedMs: number): void;
+  busToPublish(busTsMs: number, publishedMs: number): void;
+  batchProcessed(seconds: number): void;
+}
+
+export interface Published {
+  exposures: ExposureMsg[];
+  alerts: Signal[];
+  rejected: RejectedMsg[];
+}
+
+export interface RunnerOptions {
+  engine: RunnerEngine;
+  bus: Bus;
+  inputTopics?: readonly string[];
+  outputTopics?: { exposures: string; alerts: string; rejected: string };
+  /** Exposures are coalesced per node and published at most this often; 0 publishes every batch. Default 100. */
+  publishIntervalMs?: number;
+  /** Calls engine.revalueAll() this often (theta, tenor buckets, expiries, staleness); 0 = never (event clock). */
+  decayIntervalMs?: number;
+  /** Resolve a batch only after the exposure flush that carries it (see the file comment). Default false. */
+  holdForExposures?: boolean;
+  /** Wall clock, epoch ms: publish times and bus-to-publish latency. Default Date.now. */
+  now?: () => number;
+  /**
+   * The clock the spots' own `ts` are written in (the simulator's, which may run faster than the
+   * wall) and how many times faster it runs; tick-to-publish is reported in wall milliseconds.
+   */
+  tickClock?: () => number;
+  timeScale?: number;
+  metrics?: RunnerMetrics;
+  /** The engine's observer: conflated spots are counted on it as accepted inputs. */
+  observer?: { input?(type: string, outcome: IngestOutcome): void };
+  /** After each acknowledged publish: feeds the SSE hub and the alert log. */
+  onPublished?: (p: Published) => void;
+  /** Failures that are not the input's fault (an engine bug, a decay run that threw). */
+  onError?: (err: unknown, context: string) => void;
+  /** Samples kept for the live percentiles; default 16 384. */
+  latencyWindow?: number;
+}
+
+export interface RunnerStats {
+  batches: number;
+  records: number;
+  spots: number;
+  conflated: number;
+  accepted: number;
+  duplicates: number;
+  rejected: number;
+  exposuresPublished: number;
+  alertsPublished: number;
+  rejectedPublished: number;
+  decayRuns: number;
+  internalErrors: number;
+}
+
+interface PendingTick {
+  underlying: string;
+  tickTsMs: number;
+  busTsMs: number | undefined;
+}
+
+export class EngineRunner {
+  readonly latency: LatencyWindow;
+  private readonly engine: RunnerEngine;
+  private readonly bus: Bus;
+  private readonly topics: { exposures: string; alerts: string; rejected: string };
+  private readonly interval: number;
+  private readonly now: () => number;
+  private readonly tickClock: () => number;
+  private readonly timeScale: number;
+  private pending = new Map<string, ExposureMsg>();
+  /** Ticks whose exposures wait in `pending`; their latency is taken when that flush is acked. */
+  private pendingTicks: PendingTick[] = [];
+  private lastFlushAt = Number.NEGATIVE_INFINITY;
+  private flushTimer: NodeJS.Timeout | null = null;
+  private decayTimer: NodeJS.Timeout | null = null;
+  /** Every publish goes through this chain, so outputs leave in the order they were produced. */
+  private chain: Promise<void> = Promise.resolve();
+  private flushWaiters: { resolve: () => void; reject: (e: unknown) => void }[] = [];
+  private started = false;
+  private stopped = false;
+  private readonly counters: RunnerStats = {
+    batches: 0,
+    records: 0,
+    spots: 0,
+    conflated: 0,
+    accepted: 0,
+    duplicates: 0,
+    rejected: 0,
+    exposuresPublished: 0,
+    alertsPublished: 0,
+    rejectedPublished: 0,
+    decayRuns: 0,
+    internalErrors: 0,
+  };
+
+  constructor(private readonly opts: RunnerOptions) {
+    this.engine = opts.engine;
+    this.bus = opts.bus;
+    this.topics = opts.outputTopics ?? { exposures: TOPICS.exposures, alerts: TOPICS.alerts, rejected: TOPICS.rejected };
+    this.interval = opts.publishIntervalMs ?? 100;
+    this.now = opts.now ?? Date.now;
+    this.tickClock = opts.tickClock ?? this.now;
+    this.timeScale = opts.timeScale ?? 1;
+    this.latency = new LatencyWindow(opts.latencyWindow);
+    if (!(this.interval >= 0)) throw new RangeError('publishIntervalMs must be >= 0');
+    if (!(this.timeScale > 0)) throw new RangeError('timeScale must be > 0');
+    const decay = opts.decayIntervalMs ?? 0;
+    if (!(decay >= 0)) throw new RangeError('decayIntervalMs must be >= 0');
+  }
+
+  async start(): Promise<void> {
+    if (this.started) throw new Error('EngineRunner already started');
+    this.started = true;
+    await this.bus.subscribe([...(this.opts.inputTopics ?? INPUT_TOPICS)], (batch) => this.handle(batch));
+    const decay = this.opts.decayIntervalMs ?? 0;
+    if (decay > 0) {
+      this.decayTimer = setInterval(() => void this.decay(), decay);
+      this.decayTimer.unref();
+    }
+  }
+
+  stats(): RunnerStats {
+    return { ...this.counters };
+  }
+
+  /** The batch handler the bus calls. Exposed for transports that deliver batches themselves. */
+  async handle(batch: BusRecord[]): Promise<void> {
+    const t0 = performance.now();
+    const plan = planBatch(batch);
+    const ticks: PendingTick[] = [];
+    this.counters.batches++;
+    this.counters.records += batch.length;
+    this.counters.conflated += plan.conflated;
+    // Ingest and drain without an await in between: the decay timer cannot interleave.
+    const internal: RejectedMsg[] = [];
+    for (const p of plan.records) {
+      const r = p.record;
+      if (p.spot) this.counters.spots++;
+      if (!p.apply) {
+        this.counters.accepted++;
+        this.opts.observer?.input?.('spot', 'accepted');
+        if (p.spot) ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: r.timestamp });
+        continue;
+      }
+      let outcome: IngestOutcome;
+      try {
+        outcome = this.engine.ingest(r.value, originOf(r));
+      } catch (err) {
+        // An engine fault must not stall the partition nor lose the record: dead-letter it.
+        this.counters.internalErrors++;
+        this.opts.onError?.(err, `ingest ${originOf(r)}`);
+        internal.push({
+          type: 'rejected',
+          reason: `internal error while applying: ${err instanceof Error ? err.message : String(err)}`,
+          source: originOf(r),
+          raw: r.value,
+          ts: new Date(this.tickClock()).toISOString(),
+        });
+        outcome = 'rejected';
+      }
+      if (outcome === 'accepted') this.counters.accepted++;
+      else if (outcome === 'duplicate') this.counters.duplicates++;
+      else this.counters.rejected++;
+      if (outcome === 'accepted' && p.spot) ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: r.timestamp });
+    }
+    const out = this.engine.drain();
+    this.opts.metrics?.batchProcessed((performance.now() - t0) / 1000);
+    const rejected = internal.length ? [...out.rejected, ...internal] : out.rejected;
+    await this.absorb({ exposures: out.exposures, alerts: out.alerts, rejected }, ticks);
+  }
+
+  /** Publishes whatever exposures are waiting, now. */
+  flushNow(): Promise<void> {
+    return this.enqueue(() => this.flush());
+  }
+
+  /** Stops the decay clock and publishes what is pending. The bus is the caller's to close. */
+  async stop(): Promise<void> {
+    if (this.stopped) return;
+    this.stopped = true;
+    if (this.decayTimer) clearInterval(this.decayTimer);
+    if (this.flushTimer) clearTimeout(this.flushTimer);
+    this.flushTimer = null;
+    await this.flushNow();
+  }
+
+  /**
+   * Publishes the whole current snapshot (after a rebuild, so that a flush lost in a crash is
+   * repaired before anything else is read).
+   */
+  publishSnapshot(): Promise<void> {
+    const snap = this.engine.snapshot();
+    for (const e of snap) this.pending.set(e.nodeKey, e);
+    return this.flushNow();
+  }
+
+  private async decay(): Promise<void> {
+    if (this.stopped) return;
+    try {
+      this.engine.revalueAll();
+      this.counters.decayRuns++;
+      await this.absorb(this.engine.drain(), []);
+    } catch (err) {
+      this.counters.internalErrors++;
+      this.opts.onError?.(err, 'decay');
+    }
+  }
+
+  private async absorb(out: Published, ticks: PendingTick[]): Promise<void> {
+    for (const e of out.exposures) {
+      // Re-insert so that Map order tracks the latest change and a flush is in change order.
+      this.pending.delete(e.nodeKey);
+      this.pending.set(e.nodeKey, e);
+    }
+    if (ticks.length) {
+      // Only ticks that moved a node of their own underlying have a publication to wait for.
+      const touched = new Set<string>();
+      for (const e of out.exposures) if (e.node.underlying) touched.add(e.node.underlying);
+      for (const t of ticks) if (touched.has(t.underlying)) this.pendingTicks.push(t);
+    }
+    const events: Promise<void>[] = [];
+    if (out.alerts.length || out.rejected.length) events.push(this.enqueue(() => this.publishEvents(out.alerts, out.rejected)));
+    const due = this.stopped || this.now() - this.lastFlushAt >= this.interval;
+    if (this.pending.size > 0) {
+      if (due) events.push(this.enqueue(() => this.flush()));
+      else {
+        this.armFlushTimer();
+        if (this.opts.holdForExposures) events.push(new Promise((resolve, reject) => this.flushWaiters.push({ resolve, reject })));
+      }
+    }
+    await Promise.all(events);
+  }
+
+  private armFlushTimer(): void {
+    if (this.flushTimer || this.stopped) return;
+    const wait = Math.max(0, this.lastFlushAt + this.interval - this.now());
+    this.flushTimer = setTimeout(() => {
+      this.flushTimer = null;
+      this.enqueue(() => this.flush()).catch((err) => this.opts.onError?.(err, 'exposure flush'));
+    }, wait);
+  }
+
+  private enqueue(fn: () => Promise<void>): Promise<void> {
+    const run = this.chain.then(fn);
+    // The chain itself never rejects, so one failed publish does not poison the ones after it;
+    // the caller still sees its own failure through `run`.
+    this.chain = run.catch(() => undefined);
+    return run;
+  }
+
+  private async publishEvents(alerts: Signal[], rejected: RejectedMsg[]): Promise<void> {
+    const work: Promise<void>[] = [];
+    if (alerts.length) work.push(this.bus.publish(this.topics.alerts, alerts.map(signalRecord)));
+    if (rejected.length)
+      work.push(this.bus.publish(this.topics.rejected, rejected.map((r) => ({ key: null, value: JSON.stringify(r) }))));
+    await Promise.all(work);
+    this.counters.alertsPublished += alerts.length;
+    this.counters.rejectedPublished += rejected.length;
+    this.opts.onPublished?.({ exposures: [], alerts, rejected });
+  }
+
+  private async flush(): Promise<void> {
+    if (this.flushTimer) {
+      clearTimeout(this.flushTimer);
+      this.flushTimer = null;
+    }
+    const waiters = this.flushWaiters;
+    this.flushWaiters = [];
+    if (this.pending.size === 0) {
+      for (const w of waiters) w.resolve();
+      return;
+    }
+    const exposures = [...this.pending.values()];
+    const ticks = this.pendingTicks;
+    this.pending = new Map();
+    this.pendingTicks = [];
+    this.lastFlushAt = this.now();
+    try {
+      await this.bus.publish(
+        this.topics.exposures,
+        exposures.map((e) => ({ key: e.nodeKey, value: JSON.stringify(e) })),
+      );
+    } catch (err) {
+      // Put them back unless a newer value arrived meanwhile: nothing is lost to a failed publish.
+      for (const e of exposures) if (!this.pending.has(e.nodeKey)) this.pending.set(e.nodeKey, e);
+      this.pendingTicks = ticks.concat(this.pendingTicks);
+      for (const w of waiters) w.reject(err);
+      throw err;
+    }
+    const wall = this.now();
+    const tickNow = this.tickClock();
+    const metrics = this.opts.metrics;
+    for (const t of ticks) {
+      const ms = Math.max(0, (tickNow - t.tickTsMs) / this.timeScale);
+      this.latency.record(ms);
+      metrics?.tickToPublish(t.tickTsMs, t.tickTsMs + ms);
+      if (t.busTsMs !== undefined) metrics?.busToPublish(t.busTsMs, wall);
+    }
+    this.counters.exposuresPublished += exposures.length;
+    this.opts.onPublished?.({ exposures, alerts: [], rejected: [] });
+    for (const w of waiters) w.resolve();
+  }
+}
+
+/** Contract: a dead letter names its origin as topic, partition and offset where known. */
+export function originOf(r: BusRecord): string {
+  if (r.partition === undefined) return r.topic;
+  return r.offset === undefined ? `${r.topic} partition ${r.partition}` : `${r.topic} partition ${r.partition} offset ${r.offset}`;
+}
+
+function signalRecord(a: Signal): OutRecord {
+  return { key: a.type === 'alert' ? a.limitId : a.underlying, value: JSON.stringify(a) };
+}
