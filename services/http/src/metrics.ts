@@ -7,6 +7,7 @@
 // is not: input types come from the contract's closed list, underlyings are capped (the rest folded
 // into `underlying="other"`), limits are the top N by utilization, partitions are what the consumer
 // owns. No trade id ever becomes a label.
+import { ALERT_LEVELS, ALERT_STATES, INPUT_TYPES, UNPRICED_REASONS } from '@keelson/shared-types';
 import { Counter, Gauge, Histogram, Registry, collectDefaultMetrics } from 'prom-client';
 
 export type InputOutcome = 'accepted' | 'duplicate' | 'rejected';
@@ -47,12 +48,10 @@ export interface MetricsOptions {
   now?: () => number;
 }
 
-// The contract's input message types; anything else an engine reports (a record whose type is not
-// one of these, or undecodable JSON) is counted as `unknown` so a hostile feed cannot mint labels.
-const INPUT_TYPES = ['underlying', 'spot', 'vol-surface', 'curve', 'trade', 'limit', 'limit-remove'] as const;
+// Label values come from the contract's closed lists (shared-types). Any other input type an engine
+// reports (a record whose type is not a contract type, or undecodable JSON) is counted as `unknown`,
+// so a hostile feed cannot mint labels.
 const OUTCOMES: readonly InputOutcome[] = ['accepted', 'duplicate', 'rejected'];
-// Contract: unpriced reasons in precedence order.
-const UNPRICED_REASONS = ['no-reference', 'no-spot', 'no-curve', 'no-vol', 'no-fx'] as const;
 // The (severity, state) pairs the contract's level rules can produce: raised goes to warning or
 // breach, escalated only to breach, eased only to warning, cleared only to ok.
 const ALERT_TRANSITIONS = [
@@ -62,8 +61,6 @@ const ALERT_TRANSITIONS = [
   ['warning', 'eased'],
   ['ok', 'cleared'],
 ] as const;
-const SEVERITIES = ['ok', 'warning', 'breach'] as const;
-const STATES = ['raised', 'escalated', 'eased', 'cleared'] as const;
 
 /** 1 ms .. 10 s, denser around the 50 ms engine target and the 250 ms end-to-end budget. */
 export const LATENCY_BUCKETS = [0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.075, 0.1, 0.25, 0.5, 1, 2.5, 5, 10];
@@ -255,8 +252,8 @@ export class KeelsonMetrics {
         if (Number.isFinite(count) && count > 0) this.exposureUpdates.inc(count);
       },
       alert: (a) => {
-        const severity = (SEVERITIES as readonly string[]).includes(a.severity) ? a.severity : 'unknown';
-        const state = (STATES as readonly string[]).includes(a.state) ? a.state : 'unknown';
+        const severity = (ALERT_LEVELS as readonly string[]).includes(a.severity) ? a.severity : 'unknown';
+        const state = (ALERT_STATES as readonly string[]).includes(a.state) ? a.state : 'unknown';
         this.alerts.inc({ severity, state });
       },
     };
