@@ -1,0 +1,205 @@
+// The node cube: every aggregation node the contract keeps, each with compensated sums per metric,
+// and the node sets that a (desk, book, underlying, tenor) combination contributes to. A position
+// holds a reference to its node set, so moving it costs one removal and one addition per node.
+import { TENORS, formatTs, nodeKey } from '@keelson/shared-types';
+import type { ExposureMsg, NodeDims, Tenor } from '@keelson/shared-types';
+import { METRIC_COUNT, compensatedAdd } from './sums.ts';
+
+export const REASON_COUNT = 5;
+
+export class Node {
+  readonly key: string;
+  readonly dims: NodeDims;
+  readonly hasUnderlying: boolean;
+  /** One of the kinds kept for every position (firm, desk, desk/book, desk/book/underlying, underlying). */
+  readonly fixed: boolean;
+  readonly sum = new Float64Array(METRIC_COUNT);
+  readonly comp = new Float64Array(METRIC_COUNT);
+  positions = 0;
+  readonly unpriced = new Int32Array(REASON_COUNT);
+  /** Priced holdings on a stale feed. */
+  staleCount = 0;
+  /** Limits naming this node. */
+  limitRefs = 0;
+  asOfMs = 0;
+  /** Input sequence number of the last change, to list a node once per input. */
+  changedSeq = -1;
+  /** Whether the node was in the kept set at the last change (to publish its farewell once). */
+  wasKept = false;
+
+  constructor(dims: NodeDims, fixed: boolean) {
+    this.dims = dims;
+    this.key = nodeKey(dims);
+    this.hasUnderlying = dims.underlying !== undefined;
+    this.fixed = fixed;
+  }
+
+  get kept(): boolean {
+    return this.positions > 0 || this.limitRefs > 0;
+  }
+
+  value(k: number): number {
+    return (this.sum[k] as number) + (this.comp[k] as number);
+  }
+
+  add(k: number, x: number): void {
+    compensatedAdd(this.sum, this.comp, k, x);
+  }
+
+  /** Exact zeros once no position is left, so a node never carries residue of rounding. */
+  clearSums(): void {
+    this.sum.fill(0);
+    this.comp.fill(0);
+  }
+}
+
+/** The nodes one (desk, book, underlying, tenor) combination contributes to. */
+export class NodeSet {
+  readonly nodes: Node[];
+  constructor(
+    readonly desk: string,
+    readonly book: string,
+    readonly underlying: string,
+    /** index into TENORS, -1 for linear positions (no tenor) */
+    readonly tenor: number,
+    nodes: Node[],
+  ) {
+    this.nodes = nodes;
+  }
+
+  matches(dims: NodeDims): boolean {
+    if (dims.desk !== undefined && dims.desk !== this.desk) return false;
+    if (dims.book !== undefined && dims.book !== this.book) return false;
+    if (dims.underlying !== undefined && dims.underlying !== this.underlying) return false;
+    if (dims.tenor !== undefined && (this.tenor < 0 || TENORS[this.tenor] !== dims.tenor)) return false;
+    return true;
+  }
+}
+
+/** Whether a scope is one of the node kinds kept for every position anyway. */
+export function isFixedKind(dims: NodeDims): boolean {
+  if (dims.tenor !== undefined) return false;
+  const d = dims.desk !== undefined;
+  const b = dims.book !== undefined;
+  const u = dims.underlying !== undefined;
+  if (!d) return !b; // firm, or underlying alone
+  return b || !u; // desk, desk/book, desk/book/underlying; not desk/underlying
+}
+
+export class NodeCube {
+  private readonly nodes = new Map<string, Node>();
+  private readonly sets = new Map<string, NodeSet>();
+  /** Limit-named scopes that are not fixed kinds: they join node sets only while named. */
+  private readonly extra = new Map<string, Node>();
+
+  getNode(key: string): Node | undefined {
+    return this.nodes.get(key);
+  }
+
+  private nodeFor(dims: NodeDims, fixed: boolean): Node {
+    const key = nodeKey(dims);
+    let n = this.nodes.get(key);
+    if (!n) {
+      n = new Node(dims, fixed);
+      this.nodes.set(key, n);
+    }
+    return n;
+  }
+
+  nodeSet(desk: string, book: string, underlying: string, tenor: number): NodeSet {
+    const key = `${desk}\u0000${book}\u0000${underlying}\u0000${tenor}`;
+    let s = this.sets.get(key);
+    if (s) return s;
+    const nodes = [
+      this.nodeFor({}, true),
+      this.nodeFor({ desk }, true),
+      this.nodeFor({ desk, book }, true),
+      this.nodeFor({ desk, book, underlying }, true),
+      this.nodeFor({ underlying }, true),
+    ];
+    s = new NodeSet(desk, book, underlying, tenor, nodes);
+    for (const n of this.extra.values()) if (s.matches(n.dims)) nodes.push(n);
+    this.sets.set(key, s);
+    return s;
+  }
+
+  /**
+   * A limit names a scope. Returns the node and, when the scope just joined the node sets, true:
+   * the caller must then add the contributions of the positions already in it.
+   */
+  nameScope(dims: NodeDims): { node: Node; joined: boolean } {
+    const fixed = isFixedKind(dims);
+    const node = this.nodeFor(dims, fixed);
+    node.limitRefs += 1;
+    if (fixed || this.extra.has(node.key)) return { node, joined: false };
+    this.extra.set(node.key, node);
+    for (const s of this.sets.values()) if (s.matches(node.dims)) s.nodes.push(node);
+    return { node, joined: true };
+  }
+
+  /**
+   * A limit stops naming a scope. A non-fixed scope no longer named leaves every node set and is
+   * emptied: the caller publishes it once more (with zeros) like any node that is dropped.
+   */
+  unnameScope(key: string): Node | undefined {
+    const node = this.nodes.get(key);
+    if (!node) return undefined;
+    node.limitRefs -= 1;
+    if (node.limitRefs > 0 || node.fixed) return node;
+    this.extra.delete(key);
+    for (const s of this.sets.values()) {
+      const i = s.nodes.indexOf(node);
+      if (i >= 0) s.nodes.splice(i, 1);
+    }
+    node.clearSums();
+    node.positions = 0;
+    node.unpriced.fill(0);
+    node.staleCount = 0;
+    return node;
+  }
+
+  /** Nodes currently kept, sorted by nodeKey. */
+  kept(): Node[] {
+    const out: Node[] = [];
+    for (const n of this.nodes.values()) if (n.kept) out.push(n);
+    return out.sort((a, b) => (a.key < b.key ? -1 : a.key > b.key ? 1 : 0));
+  }
+
+  all(): IterableIterator<Node> {
+    return this.nodes.values();
+  }
+}
+
+export function tenorIndex(t: Tenor): number {
+  return TENORS.indexOf(t);
+}
+
+/** The contract's exposure message of a node, in reporting currency. */
+export function exposureOf(n: Node, currency: string, reasons: readonly string[]): ExposureMsg {
+  const empty = n.positions === 0;
+  const v = (k: number): number => (empty ? 0 : n.value(k));
+  const unpriced: Record<string, number> = {};
+  for (let r = 0; r < REASON_COUNT; r++) {
+    const c = n.unpriced[r] as number;
+    if (c > 0) unpriced[reasons[r] as string] = c;
+  }
+  return {
+    type: 'exposure',
+    nodeKey: n.key,
+    node: { ...n.dims },
+    currency,
+    asOf: formatTs(n.asOfMs),
+    pv: v(0),
+    pnl: v(1),
+    delta: n.hasUnderlying ? v(2) : null,
+    cashDelta: v(3),
+    gamma: n.hasUnderlying ? v(4) : null,
+    cashGamma: v(5),
+    vega: v(6),
+    theta: v(7),
+    rho: v(8),
+    positions: n.positions,
+    unpriced,
+    stale: n.staleCount > 0,
+  };
+}
