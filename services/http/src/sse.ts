@@ -9,13 +9,13 @@
 //   event: bounds   [LimitView, ...]       limits whose view changed since the last flush
 //   `: keepalive`   comment every 15 s so proxies and the browser keep the stream open
 import type { IncomingMessage, ServerResponse } from 'node:http';
-import type { AlertMsg, ExposureMsg, StaleFeedMsg } from '@keelson/shared-types';
+import type { AlertMsg, ExposureMsg, Metric, StaleFeedMsg } from '@keelson/shared-types';
 
 /** What the page needs to draw one limit's bar: its bounds and where the value stands. */
 export interface LimitView {
   limitId: string;
   nodeKey: string;
-  metric: string;
+  metric: Metric;
   max?: number;
   min?: number;
   warnAt: number;

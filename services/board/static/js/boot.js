@@ -1,0 +1,3 @@
+import { startBoard } from './main.js';
+
+window.keelsonBoard = startBoard();

@@ -1,0 +1,196 @@
+// The desk view in a real browser: Debian's chromium reads the page and its event stream from a
+// node:http server holding serveBoard and an SseHub. The reference outside the project is the
+// browser itself (its EventSource implements the WHATWG HTML "server-sent events" section, its
+// accessibility tree the WAI-ARIA treegrid pattern) and the contract's own schemas, which every
+// message fed here must pass.
+import { copyFile, mkdir } from 'node:fs/promises';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import type { Page } from 'playwright-core';
+import { alertSchema, exposureSchema, staleFeedSchema, type AlertMsg, type ExposureMsg, type StaleFeedMsg } from '@keelson/shared-types';
+import { SseHub, type LimitView } from '@keelson/http';
+import { DemoBook } from '../services/board/demo/scenario.ts';
+import { chromiumAvailability, openBrowser, startBoardServer, type BoardServer, type BrowserSession } from './support/browser.ts';
+
+const { available } = chromiumAvailability();
+const ARTIFACTS = new URL('./artifacts/', import.meta.url);
+
+/** Reads a figure as the page prints it (1.23M, 45.6k, −812, 0.0123) back into a number. */
+function readFigure(text: string): number {
+  const m = /^(\u2212|-)?([\d.]+)([kMB]?)$/.exec(text.trim());
+  if (!m) throw new Error(`not a figure: '${text}'`);
+  const scale = { '': 1, k: 1e3, M: 1e6, B: 1e9 }[m[3] as '' | 'k' | 'M' | 'B'];
+  return (m[1] ? -1 : 1) * Number(m[2]) * scale;
+}
+
+const valid = {
+  exposure: (e: ExposureMsg): ExposureMsg => exposureSchema.parse(e) as ExposureMsg,
+  alert: (a: AlertMsg): AlertMsg => alertSchema.parse(a) as AlertMsg,
+  stale: (s: StaleFeedMsg): StaleFeedMsg => staleFeedSchema.parse(s) as StaleFeedMsg,
+};
+
+describe.skipIf(!available)('desk view in chromium', () => {
+  let browser: BrowserSession;
+  let server: BoardServer;
+  let hub: SseHub;
+  let page: Page;
+  const book = new DemoBook({ seed: 11 });
+  const problems: string[] = [];
+  const pelican = 'desk=ORCA/book=ORCA-1/underlying=PELICAN';
+  let vegaLimit: LimitView;
+
+  const orcaVega = (): number => book.exposures().find((e) => e.nodeKey === 'desk=ORCA')!.vega;
+  const publishAll = (): void => {
+    for (const e of book.exposures()) hub.publishExposure(valid.exposure(e));
+  };
+  const cell = (key: string, col: string) => page.locator(`.grid-body .row[data-key="${key}"] .c-${col}`);
+
+  beforeAll(async () => {
+    hub = new SseHub({ flushIntervalMs: 50 });
+    const max = Math.ceil(Math.abs(orcaVega()) / 0.6 / 1000) * 1000;
+    vegaLimit = {
+      limitId: 'L-ORCA-VEGA',
+      nodeKey: 'desk=ORCA',
+      metric: 'vega',
+      max,
+      min: -max,
+      warnAt: 0.8,
+      hysteresis: 0.05,
+      value: orcaVega(),
+      utilization: Math.abs(orcaVega()) / max,
+      level: 'ok',
+    };
+    hub.setSnapshot(() => ({ exposures: book.exposures().map(valid.exposure), alerts: [], limits: [vegaLimit] }));
+    server = await startBoardServer(hub);
+    browser = await openBrowser();
+    page = await browser.context.newPage();
+    page.on('pageerror', (err) => problems.push(`page error: ${err.message}`));
+    page.on('console', (msg) => {
+      if (msg.type() === 'error') problems.push(`console: ${msg.text()}`);
+    });
+    await page.goto(server.url);
+    await page.waitForSelector('body[data-ready="true"]');
+  });
+
+  afterAll(async () => {
+    hub?.close();
+    await browser?.close();
+    await server?.close();
+  });
+
+  it('loads the page, connects and shows the tree with the snapshot values', async () => {
+    await expect.poll(() => page.locator('#conn').getAttribute('data-state')).toBe('live');
+    const firm = book.exposures().find((e) => e.nodeKey === 'firm')!;
+    const shown = readFigure((await cell('firm', 'pv').textContent()) ?? '');
+    // Three significant figures at most: the printed value is within half a unit of its last digit.
+    expect(Math.abs(shown - firm.pv) / Math.abs(firm.pv)).toBeLessThan(0.005);
+    // Delta is defined only where a node fixes one underlying: a dash on the firm, a figure on a leaf.
+    expect(await cell('firm', 'delta').textContent()).toBe('\u2013');
+    expect(readFigure((await cell(pelican, 'delta').textContent()) ?? '')).not.toBeNaN();
+    expect(await page.locator('[role="treegrid"]').getAttribute('aria-rowcount')).not.toBeNull();
+    expect(await page.locator(`.row[data-key="desk=ORCA"]`).getAttribute('aria-level')).toBe('2');
+    expect(await page.locator(`.row[data-key="desk=ORCA"]`).getAttribute('aria-expanded')).toBe('true');
+  });
+
+  it('shows a tick: the value changes on screen and is marked up or down', async () => {
+    const before = await cell(pelican, 'pv').textContent();
+    let leaf: ExposureMsg | undefined;
+    // A tick can leave a rounded figure unchanged; tick until the printed one moves.
+    for (let i = 0; i < 20; i++) {
+      book.tick(1000);
+      publishAll();
+      leaf = book.exposures().find((e) => e.nodeKey === pelican)!;
+      await page.waitForTimeout(120);
+      if ((await cell(pelican, 'pv').textContent()) !== before) break;
+    }
+    const after = (await cell(pelican, 'pv').textContent()) ?? '';
+    expect(after).not.toBe(before);
+    expect(Math.abs(readFigure(after) - leaf!.pv)).toBeLessThanOrEqual(Math.abs(leaf!.pv) * 0.005 + 0.01);
+    const flash = await page.locator(`.grid-body .row[data-key="${pelican}"] .cell.up, .grid-body .row[data-key="${pelican}"] .cell.dn`).count();
+    expect(flash).toBeGreaterThan(0);
+  });
+
+  it('puts a limit breach in the alert panel, on the limit bar and in the assertive live region', async () => {
+    book.bumpVega('ORCA', Math.sign(orcaVega()) * vegaLimit.max! * 0.5);
+    publishAll();
+    const value = orcaVega();
+    const u = Math.abs(value) / vegaLimit.max!;
+    expect(u).toBeGreaterThan(1);
+    const breach = valid.alert({
+      type: 'alert',
+      alertId: 'L-ORCA-VEGA#1',
+      limitId: 'L-ORCA-VEGA',
+      nodeKey: 'desk=ORCA',
+      metric: 'vega',
+      value,
+      bound: value >= 0 ? vegaLimit.max! : vegaLimit.min!,
+      utilization: u,
+      severity: 'breach',
+      previous: 'ok',
+      state: 'raised',
+      ts: book.asOf(),
+    });
+    hub.publishAlert(breach);
+    hub.publishLimit({ ...vegaLimit, value, utilization: u, level: 'breach' });
+    const item = page.locator('.signals .sig.sev-breach').first();
+    await item.waitFor();
+    expect(await item.locator('.sig-limit').textContent()).toBe('L-ORCA-VEGA');
+    expect(await item.locator('.sig-state').textContent()).toBe('raised');
+    await expect.poll(() => page.locator('.limit[data-limit="L-ORCA-VEGA"]').getAttribute('data-level')).toBe('breach');
+    expect(await page.locator('.limit[data-limit="L-ORCA-VEGA"] .lvl').textContent()).toContain('breach');
+    expect(await page.locator('#announce').textContent()).toContain('L-ORCA-VEGA');
+    await expect.poll(() => page.locator('#breach-count').textContent()).toBe('1');
+  });
+
+  it('marks a stale feed in the alert panel, the header and the rows that hold it', async () => {
+    book.setStale('PELICAN', true);
+    publishAll();
+    hub.publishAlert(
+      valid.stale({ type: 'stale-feed', underlying: 'PELICAN', state: 'raised', lastTick: '2026-03-02T14:30:00.000Z', ts: book.asOf() }),
+    );
+    await page.locator('.sig-feed[data-underlying="PELICAN"]').waitFor();
+    expect(await page.locator('.sig-feed[data-underlying="PELICAN"] .sig-state').textContent()).toBe('feed quiet');
+    await expect.poll(() => page.locator('#quiet-count').textContent()).toBe('1');
+    await expect.poll(() => cell(pelican, 'status').textContent()).toContain('stale');
+  });
+
+  it('moves through the tree from the keyboard and folds with Enter', async () => {
+    await page.focus('[role="treegrid"]');
+    await page.keyboard.press('Home');
+    await page.keyboard.press('ArrowDown');
+    // Desks sort by name under the firm: HERON first. The active row is drawn on the next frame.
+    const activeKey = async (): Promise<string | null> => {
+      const id = await page.locator('[role="treegrid"]').getAttribute('aria-activedescendant');
+      return id ? page.locator(`#${id}`).getAttribute('data-key') : null;
+    };
+    await expect.poll(activeKey).toBe('desk=HERON');
+    await page.keyboard.press('Enter');
+    await expect.poll(() => page.locator('.row[data-key="desk=HERON"]').getAttribute('aria-expanded')).toBe('false');
+    expect(await page.locator('.grid-body .row[data-key="desk=HERON/book=HERON-1"]:not([hidden])').count()).toBe(0);
+    await page.keyboard.press('ArrowRight');
+    await expect.poll(() => page.locator('.row[data-key="desk=HERON"]').getAttribute('aria-expanded')).toBe('true');
+    await page.keyboard.press('Home');
+    await expect.poll(activeKey).toBe('firm');
+  });
+
+  it('charts the chosen node over the session and saves a screenshot', async () => {
+    for (let i = 0; i < 40; i++) {
+      book.tick(1000);
+      publishAll();
+      await page.waitForTimeout(30);
+    }
+    await expect.poll(() => page.locator('#chart-readout').textContent()).toContain('of firm');
+    await page.waitForTimeout(400);
+    await mkdir(ARTIFACTS, { recursive: true });
+    const shot = new URL('board.png', ARTIFACTS);
+    await page.screenshot({ path: shot.pathname });
+    await page.emulateMedia({ colorScheme: 'dark' });
+    await page.waitForTimeout(400);
+    await page.screenshot({ path: new URL('board-dark.png', ARTIFACTS).pathname });
+    await page.emulateMedia({ colorScheme: 'light' });
+    // The README's copy is refreshed on request only, so an ordinary run never dirties the tree.
+    if (process.env.KEELSON_UPDATE_SCREENSHOT === '1') {
+      await copyFile(shot, new URL('../services/board/screenshot.png', import.meta.url));
+    }
+    expect(problems).toEqual([]);
+  });
+});
