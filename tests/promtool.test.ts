@@ -58,7 +58,9 @@ interface RuleTest {
   alert_rule_test?: { eval_time: string; alertname: string; exp_alerts?: unknown[] }[];
 }
 
-const rules = (parse(readFileSync(rulesFile, 'utf8')) as { groups: { rules: AlertRule[] }[] }).groups.flatMap((g) => g.rules);
+const rules = (parse(readFileSync(rulesFile, 'utf8')) as { groups: { rules: AlertRule[] }[] }).groups.flatMap(
+  (g) => g.rules,
+);
 const alertNames = rules.flatMap((r) => (r.alert ? [r.alert] : []));
 
 describe('alert rule coverage (without promtool too)', () => {
@@ -77,7 +79,9 @@ describe('alert rule coverage (without promtool too)', () => {
 
   it('fires and then clears every alert in some unit test', () => {
     const checks = testFiles.flatMap((f) =>
-      ((parse(readFileSync(f, 'utf8')) as { tests: RuleTest[] }).tests ?? []).flatMap((t) => t.alert_rule_test ?? []),
+      ((parse(readFileSync(f, 'utf8')) as { tests: RuleTest[] }).tests ?? []).flatMap(
+        (t) => t.alert_rule_test ?? [],
+      ),
     );
     const seconds = (d: string) => {
       const m = /^(\d+)([smh])$/.exec(d);
@@ -88,7 +92,9 @@ describe('alert rule coverage (without promtool too)', () => {
       const mine = checks.filter((c) => c.alertname === name);
       const fired = mine.filter((c) => (c.exp_alerts ?? []).length > 0).map((c) => seconds(c.eval_time));
       expect(fired.length, `${name} never fires in a test`).toBeGreaterThan(0);
-      const clearedAfter = mine.filter((c) => (c.exp_alerts ?? []).length === 0 && seconds(c.eval_time) > Math.min(...fired));
+      const clearedAfter = mine.filter(
+        (c) => (c.exp_alerts ?? []).length === 0 && seconds(c.eval_time) > Math.min(...fired),
+      );
       expect(clearedAfter.length, `${name} is never shown to clear after firing`).toBeGreaterThan(0);
     }
   });

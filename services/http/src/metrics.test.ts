@@ -9,7 +9,13 @@ interface Family {
   name: string;
   help: string;
   type: string;
-  metrics: { value?: string; labels?: Record<string, string>; buckets?: Record<string, string>; count?: string; sum?: string }[];
+  metrics: {
+    value?: string;
+    labels?: Record<string, string>;
+    buckets?: Record<string, string>;
+    count?: string;
+    sum?: string;
+  }[];
 }
 const parse = createRequire(import.meta.url)('parse-prometheus-text-format') as (text: string) => Family[];
 
@@ -17,7 +23,11 @@ async function scrape(m: KeelsonMetrics): Promise<Map<string, Family>> {
   return new Map(parse(await m.text()).map((f) => [f.name, f]));
 }
 
-function value(fams: Map<string, Family>, name: string, labels: Record<string, string> = {}): number | undefined {
+function value(
+  fams: Map<string, Family>,
+  name: string,
+  labels: Record<string, string> = {},
+): number | undefined {
   const fam = fams.get(name);
   const s = fam?.metrics.find((m) => Object.entries(labels).every(([k, v]) => m.labels?.[k] === v));
   return s?.value === undefined ? undefined : Number(s.value);
@@ -68,7 +78,12 @@ describe('KeelsonMetrics: event counters through the observer', () => {
     o.revaluations?.(-4); // a bad count must not throw inside the engine, nor decrease a counter
     o.exposuresChanged?.(7);
     o.exposuresChanged?.(Number.NaN);
-    const alert = (severity: string, state: string) => ({ limitId: 'L-1', severity, state, utilization: 0.9 });
+    const alert = (severity: string, state: string) => ({
+      limitId: 'L-1',
+      severity,
+      state,
+      utilization: 0.9,
+    });
     o.alert?.(alert('warning', 'raised'));
     o.alert?.(alert('breach', 'escalated'));
     o.alert?.(alert('warning', 'eased'));
@@ -106,8 +121,12 @@ describe('KeelsonMetrics: latency histograms', () => {
     expect(h?.buckets?.['1']).toBe('3');
     expect(h?.buckets?.['2.5']).toBe('4');
     expect(h?.buckets?.['10']).toBe('4');
-    expect(value(f, 'keelson_latency_anomalies_total', { measure: 'tick_to_publish', kind: 'negative' })).toBe(1);
-    expect(value(f, 'keelson_latency_anomalies_total', { measure: 'tick_to_publish', kind: 'non_finite' })).toBe(1);
+    expect(
+      value(f, 'keelson_latency_anomalies_total', { measure: 'tick_to_publish', kind: 'negative' }),
+    ).toBe(1);
+    expect(
+      value(f, 'keelson_latency_anomalies_total', { measure: 'tick_to_publish', kind: 'non_finite' }),
+    ).toBe(1);
     const b = f.get('keelson_bus_to_publish_seconds')?.metrics[0];
     expect(b?.buckets?.['0.005']).toBe('0');
     expect(b?.buckets?.['0.01']).toBe('1');
@@ -160,13 +179,21 @@ describe('KeelsonMetrics: levels read from the bound engine at scrape time', () 
     ];
     m.bindEngine(fakeSource({ feeds: () => feeds }));
     let f = await scrape(m);
-    expect(series(f, 'keelson_feed_staleness_seconds').map((l) => l.underlying)).toEqual(['AAA', 'BBB', 'other']);
+    expect(series(f, 'keelson_feed_staleness_seconds').map((l) => l.underlying)).toEqual([
+      'AAA',
+      'BBB',
+      'other',
+    ]);
     expect(value(f, 'keelson_feed_staleness_seconds', { underlying: 'other' })).toBe(40);
     expect(f.get('keelson_feed_staleness_seconds')?.help).toContain('underlying="other"');
     // Label slots are sticky: a new first feed does not evict an earlier one (no series churn).
     feeds.unshift({ underlying: 'AAB', lastTickMs: 99_900, stale: false });
     f = await scrape(m);
-    expect(series(f, 'keelson_feed_staleness_seconds').map((l) => l.underlying)).toEqual(['AAA', 'BBB', 'other']);
+    expect(series(f, 'keelson_feed_staleness_seconds').map((l) => l.underlying)).toEqual([
+      'AAA',
+      'BBB',
+      'other',
+    ]);
   });
 
   it('exports only the top N utilizations and drops a limit that leaves the top N', async () => {
@@ -258,6 +285,8 @@ describe('KeelsonMetrics: naming', () => {
   });
 
   it('rejects a nonsensical option naming the field', () => {
-    expect(() => new KeelsonMetrics({ topLimits: 0 })).toThrow('MetricsOptions.topLimits must be an integer >= 1');
+    expect(() => new KeelsonMetrics({ topLimits: 0 })).toThrow(
+      'MetricsOptions.topLimits must be an integer >= 1',
+    );
   });
 });

@@ -63,7 +63,9 @@ const ALERT_TRANSITIONS = [
 ] as const;
 
 /** 1 ms .. 10 s, denser around the 50 ms engine target and the 250 ms end-to-end budget. */
-export const LATENCY_BUCKETS = [0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.075, 0.1, 0.25, 0.5, 1, 2.5, 5, 10];
+export const LATENCY_BUCKETS = [
+  0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.075, 0.1, 0.25, 0.5, 1, 2.5, 5, 10,
+];
 
 export const OTHER_UNDERLYING = 'other';
 
@@ -107,7 +109,8 @@ export class KeelsonMetrics {
       registers,
     });
     // Zero every series up front: rate() and the alert rules then see a series from the first scrape.
-    for (const type of [...INPUT_TYPES, 'unknown']) for (const outcome of OUTCOMES) this.inputs.inc({ type, outcome }, 0);
+    for (const type of [...INPUT_TYPES, 'unknown'])
+      for (const outcome of OUTCOMES) this.inputs.inc({ type, outcome }, 0);
 
     this.revaluationsTotal = new Counter({
       name: 'keelson_revaluations_total',
@@ -152,79 +155,85 @@ export class KeelsonMetrics {
       registers,
     });
 
-    const self = this;
-    new Gauge({
-      name: 'keelson_feed_staleness_seconds',
-      help: `Age of the last spot per underlying at scrape time. At most ${this.maxUnderlyingLabels} underlyings get their own label; the rest are folded into underlying="${OTHER_UNDERLYING}", which reports the oldest of them.`,
-      labelNames: ['underlying'],
-      registers,
-      collect() {
-        self.collectStaleness(this);
+    this.scrapedGauge(
+      {
+        name: 'keelson_feed_staleness_seconds',
+        help: `Age of the last spot per underlying at scrape time. At most ${this.maxUnderlyingLabels} underlyings get their own label; the rest are folded into underlying="${OTHER_UNDERLYING}", which reports the oldest of them.`,
+        labelNames: ['underlying'],
       },
-    });
-    new Gauge({
-      name: 'keelson_stale_underlyings',
-      help: "Underlyings whose last spot is older than the engine's staleness threshold (all of them, not capped).",
-      registers,
-      collect() {
-        const feeds = self.read('feeds', (s) => s.feeds());
-        if (feeds) this.set(feeds.filter((f) => f.stale).length);
+      (g) => {
+        this.collectStaleness(g);
       },
-    });
+    );
+    this.scrapedGauge(
+      {
+        name: 'keelson_stale_underlyings',
+        help: "Underlyings whose last spot is older than the engine's staleness threshold (all of them, not capped).",
+      },
+      (g) => {
+        const feeds = this.read('feeds', (s) => s.feeds());
+        if (feeds) g.set(feeds.filter((f) => f.stale).length);
+      },
+    );
     this.lag = new Gauge({
       name: 'keelson_consumer_lag_messages',
       help: 'Records between the consumer position and the end of each assigned input partition.',
       labelNames: ['topic', 'partition'],
       registers,
     });
-    new Gauge({
-      name: 'keelson_positions',
-      help: 'Live (not cancelled) positions held, priced or not.',
-      registers,
-      collect() {
-        const stats = self.read('stats', (s) => s.stats());
-        if (stats) this.set(stats.positions);
+    this.scrapedGauge(
+      {
+        name: 'keelson_positions',
+        help: 'Live (not cancelled) positions held, priced or not.',
       },
-    });
-    new Gauge({
-      name: 'keelson_unpriced_positions',
-      help: 'Live positions left out of the sums for a missing input, by the first missing reason.',
-      labelNames: ['reason'],
-      registers,
-      collect() {
-        const stats = self.read('stats', (s) => s.stats());
+      (g) => {
+        const stats = this.read('stats', (s) => s.stats());
+        if (stats) g.set(stats.positions);
+      },
+    );
+    this.scrapedGauge(
+      {
+        name: 'keelson_unpriced_positions',
+        help: 'Live positions left out of the sums for a missing input, by the first missing reason.',
+        labelNames: ['reason'],
+      },
+      (g) => {
+        const stats = this.read('stats', (s) => s.stats());
         if (!stats) return;
-        this.reset();
-        for (const reason of UNPRICED_REASONS) this.set({ reason }, stats.unpriced[reason] ?? 0);
+        g.reset();
+        for (const reason of UNPRICED_REASONS) g.set({ reason }, stats.unpriced[reason] ?? 0);
         // A reason the contract does not list yet is still shown rather than hidden.
         for (const [reason, n] of Object.entries(stats.unpriced)) {
-          if (!(UNPRICED_REASONS as readonly string[]).includes(reason)) this.set({ reason }, n);
+          if (!(UNPRICED_REASONS as readonly string[]).includes(reason)) g.set({ reason }, n);
         }
       },
-    });
-    new Gauge({
-      name: 'keelson_limit_utilization',
-      help: 'Utilization (value / bound) of the limits closest to breach; only the top N limits are exported, series leave when a limit drops out.',
-      labelNames: ['limit_id'],
-      registers,
-      collect() {
-        self.collectUtilization(this);
+    );
+    this.scrapedGauge(
+      {
+        name: 'keelson_limit_utilization',
+        help: 'Utilization (value / bound) of the limits closest to breach; only the top N limits are exported, series leave when a limit drops out.',
+        labelNames: ['limit_id'],
       },
-    });
-    new Gauge({
-      name: 'keelson_open_alerts',
-      help: 'Limits currently not at ok, by severity held.',
-      labelNames: ['severity'],
-      registers,
-      collect() {
-        const open = self.read('openAlerts', (s) => s.openAlerts());
+      (g) => {
+        this.collectUtilization(g);
+      },
+    );
+    this.scrapedGauge(
+      {
+        name: 'keelson_open_alerts',
+        help: 'Limits currently not at ok, by severity held.',
+        labelNames: ['severity'],
+      },
+      (g) => {
+        const open = this.read('openAlerts', (s) => s.openAlerts());
         if (!open) return;
-        this.reset();
-        this.set({ severity: 'warning' }, 0);
-        this.set({ severity: 'breach' }, 0);
-        for (const a of open) if (a.severity === 'warning' || a.severity === 'breach') this.inc({ severity: a.severity });
+        g.reset();
+        g.set({ severity: 'warning' }, 0);
+        g.set({ severity: 'breach' }, 0);
+        for (const a of open)
+          if (a.severity === 'warning' || a.severity === 'breach') g.inc({ severity: a.severity });
       },
-    });
+    );
     this.ready = new Gauge({
       name: 'keelson_ready',
       help: '1 when the process has rebuilt its state and is connected, else 0 (see /readyz for why).',
@@ -303,6 +312,20 @@ export class KeelsonMetrics {
     h.observe(Math.max(0, ms) / 1000);
   }
 
+  /** A gauge whose value is read from the bound engine each time it is scraped. */
+  private scrapedGauge<L extends string>(
+    cfg: { name: string; help: string; labelNames?: L[] },
+    fill: (g: Gauge<L>) => void,
+  ): void {
+    new Gauge<L>({
+      ...cfg,
+      registers: [this.registry],
+      collect() {
+        fill(this);
+      },
+    });
+  }
+
   /** A scrape must not fail because the engine threw; count it and keep the last value. */
   private read<T>(what: string, f: (s: MetricsSource) => T): T | undefined {
     if (!this.source) return undefined;
@@ -323,7 +346,10 @@ export class KeelsonMetrics {
     for (const f of feeds) {
       if (!Number.isFinite(f.lastTickMs)) continue;
       const age = Math.max(0, nowMs - f.lastTickMs) / 1000;
-      if (!this.labelledUnderlyings.has(f.underlying) && this.labelledUnderlyings.size < this.maxUnderlyingLabels) {
+      if (
+        !this.labelledUnderlyings.has(f.underlying) &&
+        this.labelledUnderlyings.size < this.maxUnderlyingLabels
+      ) {
         this.labelledUnderlyings.add(f.underlying);
       }
       if (this.labelledUnderlyings.has(f.underlying)) g.set({ underlying: f.underlying }, age);
@@ -344,7 +370,10 @@ export class KeelsonMetrics {
     const top = all
       .filter((u) => Number.isFinite(u.utilization))
       // Highest utilization first; ties by limitId so the exported set is the same on every scrape.
-      .sort((a, b) => b.utilization - a.utilization || (a.limitId < b.limitId ? -1 : a.limitId > b.limitId ? 1 : 0))
+      .sort(
+        (a, b) =>
+          b.utilization - a.utilization || (a.limitId < b.limitId ? -1 : a.limitId > b.limitId ? 1 : 0),
+      )
       .slice(0, this.topLimits);
     g.reset();
     for (const u of top) g.set({ limit_id: u.limitId }, u.utilization);
@@ -352,6 +381,7 @@ export class KeelsonMetrics {
 }
 
 function positiveInt(n: number, field: string): number {
-  if (!Number.isInteger(n) || n < 1) throw new RangeError(`MetricsOptions.${field} must be an integer >= 1, got ${n}`);
+  if (!Number.isInteger(n) || n < 1)
+    throw new RangeError(`MetricsOptions.${field} must be an integer >= 1, got ${n}`);
   return n;
 }
