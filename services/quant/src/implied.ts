@@ -130,7 +130,9 @@ export function impliedVol(p: ImpliedVolInputs): number {
       }
       next = 0.5 * (lo + hi);
     }
-    if (Math.abs(next - sigma) <= 1e-15 * next || (hi !== Infinity && hi - lo <= 4e-16 * hi)) return next;
+    // Newton converges quadratically, so a step of 1e-13 sigma leaves an error far below that;
+    // a tighter test would chase the rounding noise of deep out-of-the-money prices.
+    if (Math.abs(next - sigma) <= 1e-13 * next || (hi !== Infinity && hi - lo <= 4e-16 * hi)) return next;
     sigma = next;
   }
   throw new ImpliedVolError(`implied vol did not converge in ${MAX_ITERATIONS} iterations (price ${fmt(p.price)}, bracket [${fmt(lo)}, ${fmt(hi)}])`);
