@@ -89,7 +89,12 @@ describe('KeelsonMetrics: event counters through the observer', () => {
     o.alert?.(alert('warning', 'eased'));
     o.alert?.(alert('ok', 'cleared'));
     o.alert?.(alert('breach', 'raised'));
+    o.staleFeed?.({ state: 'raised' });
+    o.staleFeed?.({ state: 'raised' });
+    o.staleFeed?.({ state: 'cleared' });
     const f = await scrape(m);
+    expect(value(f, 'keelson_stale_feed_events_total', { state: 'raised' })).toBe(2);
+    expect(value(f, 'keelson_stale_feed_events_total', { state: 'cleared' })).toBe(1);
     expect(value(f, 'keelson_revaluations_total')).toBe(150);
     expect(value(f, 'keelson_exposure_updates_total')).toBe(7);
     expect(value(f, 'keelson_alerts_total', { severity: 'warning', state: 'raised' })).toBe(1);

@@ -26,6 +26,7 @@ export interface EngineObserver {
   revaluations?(count: number): void;
   exposuresChanged?(count: number): void;
   alert?(a: ObservedAlert): void;
+  staleFeed?(e: { state: string }): void;
 }
 
 /** What the metrics read from an engine (or an aggregation stage) at scrape time. */
@@ -88,6 +89,7 @@ export class KeelsonMetrics {
   private readonly tickToPublishHist: Histogram;
   private readonly busToPublishHist: Histogram;
   private readonly batchHist: Histogram;
+  private readonly staleFeedEvents: Counter<'state'>;
   private readonly latencyAnomalies: Counter<'measure' | 'kind'>;
   private readonly lag: Gauge<'topic' | 'partition'>;
   private readonly ready: Gauge;
@@ -129,6 +131,14 @@ export class KeelsonMetrics {
       registers,
     });
     for (const [severity, state] of ALERT_TRANSITIONS) this.alerts.inc({ severity, state }, 0);
+
+    this.staleFeedEvents = new Counter({
+      name: 'keelson_stale_feed_events_total',
+      help: 'stale-feed events published: raised when an underlying goes quiet past the threshold, cleared when spots resume.',
+      labelNames: ['state'],
+      registers,
+    });
+    for (const state of ['raised', 'cleared']) this.staleFeedEvents.inc({ state }, 0);
 
     this.tickToPublishHist = new Histogram({
       name: 'keelson_tick_to_publish_seconds',
@@ -264,6 +274,9 @@ export class KeelsonMetrics {
         const severity = (ALERT_LEVELS as readonly string[]).includes(a.severity) ? a.severity : 'unknown';
         const state = (ALERT_STATES as readonly string[]).includes(a.state) ? a.state : 'unknown';
         this.alerts.inc({ severity, state });
+      },
+      staleFeed: (e) => {
+        if (e.state === 'raised' || e.state === 'cleared') this.staleFeedEvents.inc({ state: e.state });
       },
     };
   }
