@@ -3,7 +3,7 @@
 // sigma=20%, T=0.5 example: call 4.76, put 0.81, N(d1)=0.7791; values from memory), and the npm
 // `black-scholes` package (an independent implementation of the same formula) for the wiring.
 import { describe, expect, it } from 'vitest';
-import bs from 'black-scholes';
+import { createRequire } from 'node:module';
 import { priceOption } from '@keelson/quant';
 import type { AlertMsg, StaleFeedMsg } from '@keelson/shared-types';
 import { ManualClock } from './clock.ts';
@@ -27,7 +27,10 @@ import {
   underlying,
 } from './test-support.ts';
 
-const blackScholes = (bs as { blackScholes: (s: number, k: number, t: number, v: number, r: number, cp: 'call' | 'put') => number }).blackScholes;
+// the package ships no types; its one function: blackScholes(s, k, t, v, r, 'call' | 'put')
+const { blackScholes } = createRequire(import.meta.url)('black-scholes') as {
+  blackScholes: (s: number, k: number, t: number, v: number, r: number, cp: 'call' | 'put') => number;
+};
 
 function engine(extra: Partial<ConstructorParameters<typeof RiskEngine>[0]> = {}): RiskEngine {
   return new RiskEngine({ clock: 'event', ...extra });
