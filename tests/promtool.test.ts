@@ -4,6 +4,7 @@
 import { spawnSync } from 'node:child_process';
 import { readFileSync, readdirSync } from 'node:fs';
 import { join } from 'node:path';
+import { KeelsonMetrics } from '@keelson/http';
 import { describe, expect, it } from 'vitest';
 import { parse } from 'yaml';
 
@@ -26,7 +27,10 @@ if (!promtool) {
 }
 
 function run(...args: string[]): { status: number | null; out: string } {
-  const r = spawnSync(promtool ?? 'promtool', args, { cwd: root, encoding: 'utf8' });
+  return runWith(undefined, ...args);
+}
+function runWith(input: string | undefined, ...args: string[]): { status: number | null; out: string } {
+  const r = spawnSync(promtool ?? 'promtool', args, { cwd: root, encoding: 'utf8', input });
   return { status: r.status, out: `${r.stdout}${r.stderr}` };
 }
 
@@ -47,6 +51,27 @@ describe.skipIf(!promtool)('promtool', () => {
     const r = run('test', 'rules', ...testFiles);
     expect(r.out).not.toContain('FAILED');
     expect(r.status, r.out).toBe(0);
+  });
+
+  it('lints our /metrics exposition clean (promtool check metrics: naming, suffixes, HELP)', async () => {
+    const m = new KeelsonMetrics({ now: () => 10_000 });
+    m.observer.input?.('spot', 'accepted');
+    m.observer.alert?.({ limitId: 'L-1', severity: 'breach', state: 'raised' });
+    m.tickToPublish(0, 12);
+    m.consumerLag('spots', 0, 3);
+    m.bindEngine({
+      stats: () => ({ positions: 1, unpriced: { 'no-vol': 1 } }),
+      feeds: () => [{ underlying: 'ORRERY', lastTickMs: 9_000, stale: false }],
+      openAlerts: () => [{ limitId: 'L-1', severity: 'breach', state: 'raised', utilization: 1.2 }],
+    });
+    const r = runWith(await m.text(), 'check', 'metrics');
+    // prom-client's own default gauges nodejs_active_{handles,requests,resources}_total carry a
+    // _total suffix that promtool flags; those names are the library's, every other line must be clean.
+    const findings = r.out
+      .split('\n')
+      .filter((l) => l.trim() !== '')
+      .filter((l) => !/^keelson_nodejs_active_(handles|requests|resources)_total non-counter/.test(l));
+    expect(findings).toEqual([]);
   });
 });
 
