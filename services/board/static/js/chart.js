@@ -58,8 +58,18 @@ export class Chart {
     const padR = 12;
     const padT = 10;
     const padB = 22;
-    let lo = Math.min(...ys, 0);
-    let hi = Math.max(...ys, 0);
+    let lo = 0;
+    let hi = 0;
+    for (const v of ys) {
+      if (v < lo) lo = v;
+      if (v > hi) hi = v;
+    }
+    let low = Infinity;
+    let high = -Infinity;
+    for (const v of ys) {
+      if (v < low) low = v;
+      if (v > high) high = v;
+    }
     if (hi === lo) {
       hi += 1;
       lo -= 1;
@@ -113,8 +123,8 @@ export class Chart {
 
     const last = ys[ys.length - 1];
     const since = `since ${start}`;
-    this.readout.textContent = `${label} of ${nodeKey}: ${precise(last)} \u00b7 low ${compact(Math.min(...ys))} \u00b7 high ${compact(Math.max(...ys))} \u00b7 ${since}`;
-    this.canvas.setAttribute('aria-label', `Chart of ${label} for ${nodeKey} from ${start} to ${end}: latest ${precise(last)}, lowest ${precise(Math.min(...ys))}, highest ${precise(Math.max(...ys))}`);
+    this.readout.textContent = `${label} of ${nodeKey}: ${precise(last)} \u00b7 low ${compact(low)} \u00b7 high ${compact(high)} \u00b7 ${since}`;
+    this.canvas.setAttribute('aria-label', `Chart of ${label} for ${nodeKey} from ${start} to ${end}: latest ${precise(last)}, lowest ${precise(low)}, highest ${precise(high)}`);
   }
 
   schemeDark() {

@@ -26,7 +26,8 @@ export function startBoard({ source } = {}) {
   for (const c of COLUMNS.slice(1, 10)) metricSelect.append(new Option(c.title, c.id, c.id === 'pnl', c.id === 'pnl'));
   $('only-breach').addEventListener('change', (ev) => signals.setOnlyBreach(ev.target.checked));
 
-  const counters = { nodesMsgs: 0, frames: 0, lastAsOf: '', quiet: new Map() };
+  // Main-thread time spent per stage, cumulative ms: read by the frame-time benchmark.
+  const counters = { nodesMsgs: 0, frames: 0, lastAsOf: '', quiet: new Map(), parseMs: 0, applyMs: 0, renderMs: 0 };
   let chartKey = 'firm';
   let lastSlow = 0;
 
@@ -74,6 +75,7 @@ export function startBoard({ source } = {}) {
       const now = performance.now();
       counters.nodesMsgs += list.length;
       for (const e of list) applyExposure(e, now);
+      counters.applyMs += performance.now() - now;
     },
     signal(s) {
       applySignal(s, true);
@@ -84,16 +86,17 @@ export function startBoard({ source } = {}) {
   };
 
   const status = $('conn');
-  (source ?? eventSource)(handlers, (state) => {
+  (source ?? eventSource)(handlers, counters, (state) => {
     status.dataset.state = state;
     status.textContent = { live: '\u25cf live', connecting: '\u25cc connecting\u2026', retrying: '\u25cc reconnecting\u2026', closed: '\u2715 disconnected' }[state] ?? state;
   });
 
   function frame(now) {
     counters.frames++;
+    const started = performance.now();
     treeView.render(now);
-    // The slower panels redraw four times a second: bars and chart need no more to read well.
-    if (now - lastSlow > 250) {
+    // The slower panels redraw twice a second: bars and chart need no more to read well.
+    if (now - lastSlow > 500) {
       lastSlow = now;
       limitsView.render();
       const label = COLUMNS.find((c) => c.id === metricSelect.value)?.title ?? metricSelect.value;
@@ -117,25 +120,87 @@ export function startBoard({ source } = {}) {
       $('quiet-list').textContent = quiet.length ? quiet.slice(0, 8).join(', ') + (quiet.length > 8 ? ` +${quiet.length - 8}` : '') : 'none';
       document.body.classList.toggle('has-breach', breach > 0);
     }
+    counters.renderMs += performance.now() - started;
     requestAnimationFrame(frame);
   }
   requestAnimationFrame(frame);
   return { tree, limits, history, counters };
 }
 
-/** The live stream: /events on this origin (a `?token=` on the page is passed through). */
-export function eventSource(handlers, onStatus) {
+function streamUrl() {
   const token = new URLSearchParams(location.search).get('token');
-  const url = token ? `/events?token=${encodeURIComponent(token)}` : '/events';
+  return token ? `/events?token=${encodeURIComponent(token)}` : '/events';
+}
+
+// The worker's packing order (feed-worker.js METRICS).
+const PACKED_METRICS = ['pv', 'pnl', 'delta', 'cashDelta', 'gamma', 'cashGamma', 'vega', 'theta', 'rho'];
+const NO_UNPRICED = Object.freeze({});
+
+/** Rebuilds exposure-shaped objects from the worker's packed batch (only what the page reads). */
+export function unpack(p) {
+  const n = p.keys.length;
+  const M = PACKED_METRICS.length;
+  const out = new Array(n);
+  const unpriced = new Map(p.unpriced);
+  for (let i = 0; i < n; i++) {
+    const o = i * M;
+    // One object literal with a fixed shape: property reads on these stay monomorphic and fast.
+    const e = {
+      type: 'exposure',
+      nodeKey: p.keys[i],
+      asOf: p.asOf[i],
+      pv: p.vals[o],
+      pnl: p.vals[o + 1],
+      delta: Number.isNaN(p.vals[o + 2]) ? null : p.vals[o + 2],
+      cashDelta: p.vals[o + 3],
+      gamma: Number.isNaN(p.vals[o + 4]) ? null : p.vals[o + 4],
+      cashGamma: p.vals[o + 5],
+      vega: p.vals[o + 6],
+      theta: p.vals[o + 7],
+      rho: p.vals[o + 8],
+      positions: p.positions[i],
+      stale: p.stale[i] === 1,
+      unpriced: unpriced.get(i) ?? NO_UNPRICED,
+    };
+    out[i] = e;
+  }
+  return out;
+}
+
+/**
+ * The live stream: /events on this origin (a `?token=` on the page is passed through), read in a
+ * worker where the browser has them, on the main thread otherwise.
+ */
+export function eventSource(handlers, counters, onStatus) {
+  if (typeof Worker === 'function') {
+    const worker = new Worker(new URL('./feed-worker.js', import.meta.url), { type: 'module' });
+    worker.onmessage = (ev) => {
+      const msg = ev.data;
+      if (msg.t === 'status') onStatus(msg.state);
+      else if (msg.t === 'nodes') {
+        const t0 = performance.now();
+        const list = unpack(msg);
+        counters.parseMs += performance.now() - t0;
+        counters.workerMs = (counters.workerMs ?? 0) + msg.workerMs;
+        handlers.nodes(list);
+      } else if (msg.t === 'bad') console.error(`keelson board: unreadable ${msg.name} event: ${msg.error}`);
+      else handlers[msg.t]?.(msg.data);
+    };
+    worker.onerror = (err) => console.error('keelson board: feed worker failed', err.message);
+    worker.postMessage({ url: new URL(streamUrl(), location.href).href });
+    return worker;
+  }
   onStatus('connecting');
-  const es = new EventSource(url);
+  const es = new EventSource(streamUrl());
   es.addEventListener('open', () => onStatus('live'));
   es.addEventListener('error', () => onStatus(es.readyState === EventSource.CLOSED ? 'closed' : 'retrying'));
   for (const [name, fn] of Object.entries(handlers)) {
     es.addEventListener(name, (ev) => {
       let data;
+      const t0 = performance.now();
       try {
         data = JSON.parse(ev.data);
+        counters.parseMs += performance.now() - t0;
       } catch (err) {
         console.error(`keelson board: unreadable ${name} event`, err);
         return;

@@ -178,14 +178,15 @@ export class TreeView {
         cell.textContent = text;
         cell.lastText = text;
       }
-      const move = entry.moves[metric];
-      if (move && move.at !== cell.moveAt) {
-        cell.moveAt = move.at;
-        if (now - move.at < FLASH_MS) {
-          cell.classList.toggle('up', move.dir > 0);
-          cell.classList.toggle('dn', move.dir < 0);
+      const at = entry.moveAt[m];
+      if (at !== 0 && at !== cell.moveAt) {
+        cell.moveAt = at;
+        if (now - at < FLASH_MS) {
+          const dir = entry.moveDir[m];
+          cell.classList.toggle('up', dir > 0);
+          cell.classList.toggle('dn', dir < 0);
           if (cell.flashUntil === 0) slot.flashing++;
-          cell.flashUntil = move.at + FLASH_MS;
+          cell.flashUntil = at + FLASH_MS;
         }
       }
     }
