@@ -18,7 +18,6 @@ import {
   UNPRICED_REASONS,
   decodeInput,
   formatTs,
-  parseTs,
   tenorBucket,
 } from '@keelson/shared-types';
 import type {
@@ -55,6 +54,7 @@ import type { LimitView, MetricValues } from './limits.ts';
 import { NodeCube, exposureOf } from './nodes.ts';
 import type { Node, NodeSet } from './nodes.ts';
 import { partialOf } from './partials.ts';
+import { msOf } from './time.ts';
 import type { NodePartial } from './partials.ts';
 import {
   CompensatedSum,
@@ -390,7 +390,7 @@ export class RiskEngine {
       this.observer?.input?.(msg.type, 'rejected');
       return 'rejected';
     }
-    this.begin(parseTs(msg.ts));
+    this.begin(msOf(msg.ts));
     let outcome: Outcome;
     switch (msg.type) {
       case 'underlying':
@@ -486,7 +486,7 @@ export class RiskEngine {
 
   private onUnderlying(msg: UnderlyingMsg): Outcome {
     const u = this.und(msg.underlying);
-    const ts = parseTs(msg.ts);
+    const ts = msOf(msg.ts);
     if (ts < u.refTsMs) return 'duplicate';
     const old = u.ref;
     if (old) {
@@ -497,7 +497,7 @@ export class RiskEngine {
       kind: msg.kind,
       currency: msg.currency,
       dividendYield: msg.dividendYield,
-      dividends: msg.dividends.map((d) => ({ exMs: parseTs(d.exDate), amount: d.amount })).sort((a, b) => a.exMs - b.exMs),
+      dividends: msg.dividends.map((d) => ({ exMs: msOf(d.exDate), amount: d.amount })).sort((a, b) => a.exMs - b.exMs),
       base: msg.kind === 'fx' ? msg.underlying.slice(0, 3) : undefined,
     };
     u.ref = ref;
@@ -511,7 +511,7 @@ export class RiskEngine {
 
   private onSpot(msg: SpotMsg): Outcome {
     const u = this.und(msg.underlying);
-    const ts = parseTs(msg.ts);
+    const ts = msOf(msg.ts);
     // an older tick than the one held is out of order on its key: counted, never applied
     if (ts < u.lastTickMs) return 'duplicate';
     u.spot = msg.price;
@@ -544,10 +544,10 @@ export class RiskEngine {
 
   private onSurface(msg: VolSurfaceMsg): Outcome {
     const u = this.und(msg.underlying);
-    const ts = parseTs(msg.ts);
+    const ts = msOf(msg.ts);
     if (ts < u.surfaceTsMs) return 'duplicate';
     u.surface = {
-      expiriesMs: msg.expiries.map(parseTs),
+      expiriesMs: msg.expiries.map(msOf),
       strikes: msg.strikes.slice(),
       vols: msg.vols.map((r) => r.slice()),
       atMs: Number.NaN,
@@ -560,7 +560,7 @@ export class RiskEngine {
   }
 
   private onCurve(msg: CurveMsg): Outcome {
-    const ts = parseTs(msg.ts);
+    const ts = msOf(msg.ts);
     const old = this.curves.get(msg.currency);
     if (old && ts < old.tsMs) return 'duplicate';
     this.curves.set(msg.currency, { tenors: msg.tenors.slice(), zeroRates: msg.zeroRates.slice(), tsMs: ts });
@@ -940,7 +940,9 @@ export class RiskEngine {
     if (reason === PRICED) this.contribution(h.inst, h.qm.value, h.cost.value, this.fxRate((h.und.ref as RefData).currency) as number, v);
     else v.fill(0);
     const stale = reason === PRICED && h.und.stale;
-    const set = reason === EMPTY ? null : this.cube.nodeSet(h.desk, h.book, h.und.name, this.inst.tenor[h.inst] as number);
+    const tenor = this.inst.tenor[h.inst] as number;
+    // node sets are updated in place when limit scopes come and go, so one found before stays right
+    const set = reason === EMPTY ? null : h.set !== null && h.set.tenor === tenor ? h.set : this.cube.nodeSet(h.desk, h.book, h.und.name, tenor);
     const trades = h.trades;
     if (set === h.set && reason === h.reason && stale === h.stale && trades === h.appliedTrades && sameVec(v, h.vec)) return;
     if (set === h.set && set !== null) {

@@ -1,7 +1,7 @@
 // Distinct instruments in struct-of-arrays form: each is priced once per revaluation and the
 // per-unit results are scaled by the positions on it.
 import type { OptionInstrument, LinearInstrument } from '@keelson/shared-types';
-import { parseTs } from '@keelson/shared-types';
+import { msOf } from './time.ts';
 
 export const PRICED = -1;
 export const R_NO_REFERENCE = 0;
@@ -46,7 +46,7 @@ export class InstrumentTable {
 
   key(underlying: string, ins: OptionInstrument | LinearInstrument): string {
     if (ins.kind === 'linear') return `${underlying}|linear`;
-    return `${underlying}|option|${ins.right}|${ins.payoff}|${ins.strike}|${parseTs(ins.expiry)}|${ins.cashAmount ?? 1}`;
+    return `${underlying}|option|${ins.right}|${ins.payoff}|${ins.strike}|${msOf(ins.expiry)}|${ins.cashAmount ?? 1}`;
   }
 
   find(key: string): number | undefined {
@@ -62,7 +62,7 @@ export class InstrumentTable {
       this.right[i] = RIGHT_CODE[ins.right];
       this.payoff[i] = PAYOFF_CODE[ins.payoff];
       this.strike[i] = ins.strike;
-      this.expiryMs[i] = parseTs(ins.expiry);
+      this.expiryMs[i] = msOf(ins.expiry);
       this.cashAmount[i] = ins.cashAmount ?? 1;
       this.tenor[i] = 0;
     } else {

@@ -1,7 +1,8 @@
 // The node cube: every aggregation node the contract keeps, each with compensated sums per metric,
 // and the node sets that a (desk, book, underlying, tenor) combination contributes to. A position
 // holds a reference to its node set, so moving it costs one removal and one addition per node.
-import { TENORS, formatTs, nodeKey } from '@keelson/shared-types';
+import { TENORS, nodeKey } from '@keelson/shared-types';
+import { isoOf } from './time.ts';
 import type { ExposureMsg, NodeDims, Tenor } from '@keelson/shared-types';
 import { METRIC_COUNT, compensatedAdd } from './sums.ts';
 
@@ -176,8 +177,7 @@ export function tenorIndex(t: Tenor): number {
 
 /** The contract's exposure message of a node, in reporting currency. */
 export function exposureOf(n: Node, currency: string, reasons: readonly string[]): ExposureMsg {
-  const empty = n.positions === 0;
-  const v = (k: number): number => (empty ? 0 : n.value(k));
+  const z = n.positions === 0;
   const unpriced: Record<string, number> = {};
   for (let r = 0; r < REASON_COUNT; r++) {
     const c = n.unpriced[r] as number;
@@ -188,16 +188,16 @@ export function exposureOf(n: Node, currency: string, reasons: readonly string[]
     nodeKey: n.key,
     node: { ...n.dims },
     currency,
-    asOf: formatTs(n.asOfMs),
-    pv: v(0),
-    pnl: v(1),
-    delta: n.hasUnderlying ? v(2) : null,
-    cashDelta: v(3),
-    gamma: n.hasUnderlying ? v(4) : null,
-    cashGamma: v(5),
-    vega: v(6),
-    theta: v(7),
-    rho: v(8),
+    asOf: isoOf(n.asOfMs),
+    pv: z ? 0 : n.value(0),
+    pnl: z ? 0 : n.value(1),
+    delta: n.hasUnderlying ? (z ? 0 : n.value(2)) : null,
+    cashDelta: z ? 0 : n.value(3),
+    gamma: n.hasUnderlying ? (z ? 0 : n.value(4)) : null,
+    cashGamma: z ? 0 : n.value(5),
+    vega: z ? 0 : n.value(6),
+    theta: z ? 0 : n.value(7),
+    rho: z ? 0 : n.value(8),
     positions: n.positions,
     unpriced,
     stale: n.staleCount > 0,
