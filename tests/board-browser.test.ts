@@ -194,3 +194,51 @@ describe.skipIf(!available)('desk view in chromium', () => {
     expect(problems).toEqual([]);
   });
 });
+
+// The same page mounted by the real process: the embedded runtime (simulator, in-process bus, engine
+// runner, HTTP server) serves it at / and its event stream at /events.
+describe.skipIf(!available)('desk view on the real embedded engine', () => {
+  let browser: BrowserSession;
+  let runtime: { url: string; stop(): Promise<void>; engine: { snapshot(): ExposureMsg[] } };
+  let page: Page;
+  const problems: string[] = [];
+
+  beforeAll(async () => {
+    const { startEmbedded, createLogger } = await import('@keelson/runtime');
+    const logger = await createLogger({ level: 'error', pretty: false });
+    // Small book, quick clock: a few seconds of wall time are minutes of market.
+    runtime = await startEmbedded({ port: 0, seed: 3, speed: 20, underlyings: 40, trades: 1500, logger });
+    browser = await openBrowser();
+    page = await browser.context.newPage();
+    page.on('pageerror', (err) => problems.push(`page error: ${err.message}`));
+    page.on('console', (msg) => {
+      if (msg.type() === 'error') problems.push(`console: ${msg.text()}`);
+    });
+  }, 120_000);
+
+  afterAll(async () => {
+    await browser?.close();
+    await runtime?.stop();
+  });
+
+  it('shows the engine’s firm and desk nodes and their values moving', async () => {
+    await page.goto(runtime.url);
+    await page.waitForSelector('body[data-ready="true"]');
+    await expect.poll(() => page.locator('#conn').getAttribute('data-state')).toBe('live');
+    await expect.poll(() => page.locator('.grid-body .row[data-key="firm"] .c-pv').textContent(), { timeout: 20_000 }).toMatch(/\d/);
+    const desks = runtime.engine.snapshot().filter((e) => /^desk=[^/]+$/.test(e.nodeKey));
+    expect(desks.length).toBeGreaterThan(0);
+    for (const d of desks) expect(await page.locator(`.grid-body .row[data-key="${d.nodeKey}"]`).count()).toBe(1);
+    // The engine's firm P&L as the page prints it matches the engine's own snapshot to display precision.
+    const first = (await page.locator('.grid-body .row[data-key="firm"] .c-pv').textContent()) ?? '';
+    await expect.poll(() => page.locator('.grid-body .row[data-key="firm"] .c-pv').textContent(), { timeout: 20_000 }).not.toBe(first);
+    await page.waitForTimeout(300);
+    const firm = runtime.engine.snapshot().find((e) => e.nodeKey === 'firm')!;
+    const shown = readFigure((await page.locator('.grid-body .row[data-key="firm"] .c-pv').textContent()) ?? '');
+    // The engine moves on between the two reads; the board lags it by at most a flush and a frame.
+    expect(Math.abs(shown - firm.pv)).toBeLessThan(Math.abs(firm.pv) * 0.05 + 1);
+    await mkdir(ARTIFACTS, { recursive: true });
+    await page.screenshot({ path: new URL('board-embedded.png', ARTIFACTS).pathname });
+    expect(problems).toEqual([]);
+  });
+});

@@ -97,7 +97,7 @@ export class Chart {
     g.lineTo(w - padR, Y(0));
     g.stroke();
     g.setLineDash([]);
-    g.fillText('0', padL - 14, Y(0) + 4);
+    if (lo < 0 && hi > 0) g.fillText('0', 4, Y(0) + 4);
 
     g.strokeStyle = line;
     g.lineWidth = 2;

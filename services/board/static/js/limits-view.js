@@ -34,7 +34,7 @@ export class LimitsView {
     const lvl = el('span', 'lvl');
     const id = el('span', 'lid');
     const node = el('span', 'lnode');
-    head.append(lvl, id, node);
+    head.append(lvl, id);
     const bar = el('div', 'bar');
     bar.setAttribute('role', 'meter');
     bar.setAttribute('aria-valuemin', '0');
@@ -45,7 +45,7 @@ export class LimitsView {
     limit.style.left = `${(1 / SCALE) * 100}%`;
     bar.append(fill, warn, limit);
     const foot = el('div', 'limit-foot');
-    li.append(head, bar, foot);
+    li.append(head, node, bar, foot);
     this.list.append(li);
     const item = { li, lvl, id, node, bar, fill, warn, foot, key: '' };
     this.items.push(item);

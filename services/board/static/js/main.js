@@ -29,6 +29,7 @@ export function startBoard({ source } = {}) {
   // Main-thread time spent per stage, cumulative ms: read by the frame-time benchmark.
   const counters = { nodesMsgs: 0, frames: 0, lastAsOf: '', quiet: new Map(), parseMs: 0, applyMs: 0, renderMs: 0 };
   let chartKey = 'firm';
+  let everShown = false;
   let lastSlow = 0;
 
   function selectNode(entry) {
@@ -67,7 +68,9 @@ export function startBoard({ source } = {}) {
       const sorted = [...(st.alerts ?? [])].sort((a, b) => (a.ts < b.ts ? -1 : a.ts > b.ts ? 1 : 0));
       signals.reset([]);
       for (const s of sorted) applySignal(s, false);
-      if (tree.byKey.size < 60) tree.expandTo(3);
+      // A small book opens down to its underlyings; a large one to its books, the user opens the rest.
+      if (!everShown) tree.expandTo(tree.byKey.size < 60 ? 3 : 2);
+      everShown = true;
       treeView.invalidate();
       document.body.dataset.ready = 'true';
     },
@@ -127,9 +130,14 @@ export function startBoard({ source } = {}) {
   return { tree, limits, history, counters };
 }
 
+/**
+ * EventSource cannot send an Authorization header, so a guarded server takes the bearer token as
+ * the `access_token` query parameter (RFC 6750 section 2.3): open the page as /?access_token=...
+ */
 function streamUrl() {
-  const token = new URLSearchParams(location.search).get('token');
-  return token ? `/events?token=${encodeURIComponent(token)}` : '/events';
+  const q = new URLSearchParams(location.search);
+  const token = q.get('access_token') ?? q.get('token');
+  return token ? `/events?access_token=${encodeURIComponent(token)}` : '/events';
 }
 
 // The worker's packing order (feed-worker.js METRICS).
@@ -168,7 +176,7 @@ export function unpack(p) {
 }
 
 /**
- * The live stream: /events on this origin (a `?token=` on the page is passed through), read in a
+ * The live stream: /events on this origin (the page's access token passed through), read in a
  * worker where the browser has them, on the main thread otherwise.
  */
 export function eventSource(handlers, counters, onStatus) {
