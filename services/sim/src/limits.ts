@@ -64,7 +64,15 @@ interface Tally {
   scope: Scope;
   metric: Metric;
   value: number;
+  /** sum of the absolute contributions: how much activity the net figure hides */
+  gross: number;
 }
+
+/**
+ * A bound is never set below this share of the scope's gross exposure, as a risk manager
+ * would not set a limit that one ordinary ticket could blow through.
+ */
+const MIN_BOUND_OF_GROSS = 0.3;
 
 /** Three significant figures: limits are set in round numbers. */
 function roundBound(x: number): number {
@@ -94,8 +102,10 @@ export function sizeLimits(
   const tallies = new Map<string, Tally>();
   const add = (id: string, scope: Scope, metric: Metric, value: number) => {
     const t = tallies.get(id);
-    if (t) t.value += value;
-    else tallies.set(id, { id, scope, metric, value });
+    if (t) {
+      t.value += value;
+      t.gross += Math.abs(value);
+    } else tallies.set(id, { id, scope, metric, value, gross: Math.abs(value) });
   };
   for (const t of trades) {
     const c = contribution(market, t, nowMs);
@@ -117,7 +127,9 @@ export function sizeLimits(
   for (const t of [...tallies.values()].sort((a, b) => (a.id < b.id ? -1 : a.id > b.id ? 1 : 0))) {
     // A scope whose exposure is (numerically) nil gets no limit: there is nothing to size it on.
     if (!(Math.abs(t.value) > 1e-9)) continue;
-    const bound = roundBound(Math.abs(t.value) / targetUtilization(rng));
+    const bound = roundBound(
+      Math.max(Math.abs(t.value) / targetUtilization(rng), MIN_BOUND_OF_GROSS * t.gross),
+    );
     if (!(bound > 0)) continue;
     out.push({
       type: 'limit',
@@ -130,6 +142,54 @@ export function sizeLimits(
       hysteresis: 0.05,
       ts,
     });
+  }
+  return out;
+}
+
+/** The contract's utilization: value / max when value >= 0 and max is set, value / min when below 0 and min is set. */
+export function utilization(value: number, limit: Pick<LimitMsg, 'max' | 'min'>): number {
+  if (value >= 0 && limit.max !== undefined) return value / limit.max;
+  if (value < 0 && limit.min !== undefined) return value / limit.min;
+  return 0;
+}
+
+function inScope(scope: LimitMsg['scope'], t: TradeBookingMsg, nowMs: number): boolean {
+  if (scope.desk !== undefined && scope.desk !== t.desk) return false;
+  if (scope.book !== undefined && scope.book !== t.book) return false;
+  if (scope.underlying !== undefined && scope.underlying !== t.underlying) return false;
+  if (scope.tenor !== undefined) {
+    if (t.instrument.kind !== 'option') return false;
+    if (tenorBucket(Date.parse(t.instrument.expiry), nowMs) !== scope.tenor) return false;
+  }
+  return true;
+}
+
+/** The simulator's own estimate of each limit's utilization over the given live trades. */
+export function estimateUtilizations(
+  market: Market,
+  trades: Iterable<TradeBookingMsg>,
+  limits: readonly LimitMsg[],
+  nowMs: number,
+): Map<string, number> {
+  const contributions = [...trades].map((t) => ({ t, c: contribution(market, t, nowMs) }));
+  const out = new Map<string, number>();
+  for (const l of limits) {
+    let v = 0;
+    for (const { t, c } of contributions) {
+      if (!inScope(l.scope, t, nowMs)) continue;
+      switch (l.metric) {
+        case 'delta':
+        case 'gamma':
+        case 'pv':
+        case 'cashDelta':
+        case 'vega':
+          v += c[l.metric];
+          break;
+        default:
+          break;
+      }
+    }
+    out.set(l.limitId, utilization(v, l));
   }
   return out;
 }

@@ -6,13 +6,14 @@ import {
   formatTs,
   type CurveMsg,
   type InputMsg,
+  type LimitMsg,
   type SpotMsg,
   type TradeBookingMsg,
   type UnderlyingMsg,
   type VolSurfaceMsg,
 } from '@keelson/shared-types';
 import { amendTrade, cancelTrade, newTrade, TradeBook, UnderlyingPicker } from './flow.ts';
-import { sizeLimits } from './limits.ts';
+import { estimateUtilizations, sizeLimits } from './limits.ts';
 import { malformedLine } from './malformed.ts';
 import { Market, type SurfaceMode } from './market.ts';
 import { Rng, STREAM } from './rng.ts';
@@ -21,7 +22,6 @@ import {
   CURRENCIES,
   DESKS,
   REPORTING_CURRENCY,
-  round,
   type Currency,
   type SimUnderlying,
 } from './universe.ts';
@@ -314,6 +314,16 @@ export class MarketSim {
     return this.book.size;
   }
 
+  /**
+   * The simulator's own estimate of every bootstrap limit's utilization now, from its small
+   * pricer (the engine's exact figures differ a little): for checking that the demo tests its
+   * limits, not for risk.
+   */
+  estimatedUtilizations(): Map<string, number> {
+    const limits = this.bootstrapMessages.filter((m): m is LimitMsg => m.type === 'limit');
+    return estimateUtilizations(this.market, this.book.all(), limits, this.prevMs);
+  }
+
   /** The current model price of a name (unrounded), or undefined for an unknown name. */
   priceOf(name: string): number | undefined {
     const i = this.market.indexOf.get(name);
@@ -368,13 +378,9 @@ export class MarketSim {
 
   private spotMsg(i: number, ts: string): SpotMsg {
     const u = this.universeList[i] as SimUnderlying;
-    const floor = 10 ** -u.priceDecimals;
-    return {
-      type: 'spot',
-      underlying: u.name,
-      price: Math.max(round(this.market.spot(i), u.priceDecimals), floor),
-      ts,
-    };
+    // Eight significant figures rather than a tick size: rounding must not blur the statistics
+    // of small moves (a sub-tick move would otherwise vanish), and a price never rounds to 0.
+    return { type: 'spot', underlying: u.name, price: Number(this.market.spot(i).toPrecision(8)), ts };
   }
 
   private surfaceMsg(i: number, nowMs: number): VolSurfaceMsg {
