@@ -2,7 +2,7 @@
 // call per option. The caller owns validation (spot, strike, vol > 0; everything finite); the
 // engine's inputs have passed the contract's schemas by the time they get here.
 
-import { valueInto } from './kernel.ts';
+import { valueRange } from './kernel.ts';
 import type { GreeksBatch, OptionBatch } from './types.ts';
 
 export function allocOptionBatch(n: number): OptionBatch {
@@ -40,17 +40,5 @@ export function allocGreeksBatch(n: number): GreeksBatch {
 export function priceBatch(b: OptionBatch, out: GreeksBatch, from = 0, to = b.n): void {
   if (from < 0 || to > b.n || from > to) throw new RangeError(`batch range [${from}, ${to}) is outside [0, ${b.n})`);
   if (out.price.length < to) throw new RangeError(`output batch holds ${out.price.length} rows, range ends at ${to}`);
-  const right = b.right;
-  const payoff = b.payoff;
-  const spot = b.spot;
-  const strike = b.strike;
-  const tau = b.tau;
-  const vol = b.vol;
-  const rate = b.rate;
-  const carry = b.carry;
-  const cash = b.cashAmount;
-  const rhoCarry = b.rhoCarry;
-  for (let i = from; i < to; i++) {
-    valueInto(right[i]!, payoff[i]!, spot[i]!, strike[i]!, tau[i]!, vol[i]!, rate[i]!, carry[i]!, cash[i]!, rhoCarry[i]!, out, i);
-  }
+  valueRange(b, out, from, to);
 }

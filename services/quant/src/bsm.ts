@@ -1,10 +1,12 @@
 // Object API over the shared kernel: validates its inputs (a wrong number here would otherwise
 // travel silently into exposures) and returns a fresh Greeks object.
 
-import { allocGreeksBatch } from './batch.ts';
-import { valueInto, PAYOFF_ASSET, PAYOFF_CASH, PAYOFF_VANILLA } from './kernel.ts';
+import { allocGreeksBatch, allocOptionBatch } from './batch.ts';
+import { valueRange, PAYOFF_ASSET, PAYOFF_CASH, PAYOFF_VANILLA } from './kernel.ts';
 import type { Greeks, OptionInputs, Payoff } from './types.ts';
 
+// One-row batch: the object API runs the very loop the batch pricer runs.
+const one = allocOptionBatch(1);
 const scratch = allocGreeksBatch(1);
 
 function requireFinite(name: string, v: number, positive: boolean): void {
@@ -48,20 +50,17 @@ export function validateOptionInputs(p: OptionInputs): void {
 /** Price and Greeks of one option (units: see Greeks). tau <= 0: intrinsic value, zero Greeks. */
 export function priceOption(p: OptionInputs): Greeks {
   validateOptionInputs(p);
-  valueInto(
-    p.right === 'call' ? 0 : 1,
-    payoffCode(p.payoff),
-    p.spot,
-    p.strike,
-    p.tau,
-    p.vol,
-    p.rate,
-    p.carry,
-    p.cashAmount ?? 1,
-    p.rhoCarry === false ? 0 : 1,
-    scratch,
-    0,
-  );
+  one.right[0] = p.right === 'call' ? 0 : 1;
+  one.payoff[0] = payoffCode(p.payoff);
+  one.spot[0] = p.spot;
+  one.strike[0] = p.strike;
+  one.tau[0] = p.tau;
+  one.vol[0] = p.vol;
+  one.rate[0] = p.rate;
+  one.carry[0] = p.carry;
+  one.cashAmount[0] = p.cashAmount ?? 1;
+  one.rhoCarry[0] = p.rhoCarry === false ? 0 : 1;
+  valueRange(one, scratch, 0, 1);
   return {
     price: scratch.price[0]!,
     delta: scratch.delta[0]!,

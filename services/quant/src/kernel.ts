@@ -12,134 +12,159 @@
 // second Gaussian comes free from S* e^{(b-r)tau} n(d1) = K e^{-r tau} n(d2).
 
 import { gaussian, normCdfWithGaussian } from './normal.ts';
-import type { GreeksBatch } from './types.ts';
+import type { GreeksBatch, OptionBatch } from './types.ts';
 
 const INV_SQRT_2PI = 0.3989422804014327;
 const PER_POINT = 0.01;
 const PER_POINT_SQ = 1e-4;
-const DAYS = 365;
+const PER_DAY = 1 / 365;
 
 export const PAYOFF_VANILLA = 0;
 export const PAYOFF_CASH = 1;
 export const PAYOFF_ASSET = 2;
 
 /**
- * Value one option and write its price and Greeks at index i of `out`.
- * isPut: 0 call, 1 put. Inputs are taken as valid (spot, strike, vol > 0, all finite): the
- * callers validate at their edges so this loop stays branch-light.
+ * Value options [from, to) of `batch` into the same rows of `out`. Inputs are taken as valid
+ * (spot, strike, vol > 0, all finite): the callers validate at their edges. The body is one loop
+ * with no calls but the math library and the CDF, so V8 keeps everything in registers.
  */
-export function valueInto(
-  isPut: number,
-  payoff: number,
-  s: number,
-  k: number,
-  tau: number,
-  vol: number,
-  r: number,
-  b: number,
-  cash: number,
-  rhoCarry: number,
-  out: GreeksBatch,
-  i: number,
-): void {
-  const phi = isPut === 0 ? 1 : -1;
-  if (!(tau > 0)) {
-    // Expired: what the holder receives now; in the money is strict, so at the strike it pays nothing.
-    const itm = phi * (s - k) > 0;
-    out.price[i] = payoff === PAYOFF_VANILLA ? (itm ? phi * (s - k) : 0) : payoff === PAYOFF_CASH ? (itm ? cash : 0) : itm ? s : 0;
-    out.delta[i] = 0;
-    out.gamma[i] = 0;
-    out.vega[i] = 0;
-    out.theta[i] = 0;
-    out.rho[i] = 0;
-    out.vanna[i] = 0;
-    out.volga[i] = 0;
-    out.charm[i] = 0;
-    return;
+export function valueRange(batch: OptionBatch, out: GreeksBatch, from: number, to: number): void {
+  const rightA = batch.right;
+  const payoffA = batch.payoff;
+  const spotA = batch.spot;
+  const strikeA = batch.strike;
+  const tauA = batch.tau;
+  const volA = batch.vol;
+  const rateA = batch.rate;
+  const carryA = batch.carry;
+  const cashA = batch.cashAmount;
+  const rhoCarryA = batch.rhoCarry;
+  const oPrice = out.price;
+  const oDelta = out.delta;
+  const oGamma = out.gamma;
+  const oVega = out.vega;
+  const oTheta = out.theta;
+  const oRho = out.rho;
+  const oVanna = out.vanna;
+  const oVolga = out.volga;
+  const oCharm = out.charm;
+  for (let i = from; i < to; i++) {
+    const isPut = rightA[i]!;
+    const payoff = payoffA[i]!;
+    const s = spotA[i]!;
+    const k = strikeA[i]!;
+    const tau = tauA[i]!;
+    const vol = volA[i]!;
+    const r = rateA[i]!;
+    const b = carryA[i]!;
+    const cash = cashA[i]!;
+    const rhoCarry = rhoCarryA[i]!;
+    const phi = isPut === 0 ? 1 : -1;
+    if (!(tau > 0)) {
+      // Expired: what the holder receives now; in the money is strict, so at the strike it pays nothing.
+      const itm = phi * (s - k) > 0;
+      oPrice[i] = payoff === PAYOFF_VANILLA ? (itm ? phi * (s - k) : 0) : payoff === PAYOFF_CASH ? (itm ? cash : 0) : itm ? s : 0;
+      oDelta[i] = 0;
+      oGamma[i] = 0;
+      oVega[i] = 0;
+      oTheta[i] = 0;
+      oRho[i] = 0;
+      oVanna[i] = 0;
+      oVolga[i] = 0;
+      oCharm[i] = 0;
+      continue;
+    }
+
+    const sqrtT = Math.sqrt(tau);
+    const vst = vol * sqrtT;
+    // Reciprocals once: a division costs several multiplications and this loop needs many.
+    const iVst = 1 / vst;
+    const iVol = 1 / vol;
+    const iS = 1 / s;
+    const half = 0.5 / tau; // 1/(2 tau)
+    const dfR = Math.exp(-r * tau); // e^{-r tau}
+    const dfQ = Math.exp((b - r) * tau); // e^{(b-r) tau}
+    const sd = s * dfQ;
+    const kd = k * dfR;
+    const d1 = (Math.log(s / k) + (b + 0.5 * vol * vol) * tau) * iVst;
+    const d2 = d1 - vst;
+    // Take the Gaussian at whichever of d1, d2 is nearer 0 (it cannot underflow while the other
+    // still matters) and scale it by F/K = sd/kd to get the other.
+    let g1: number;
+    let g2: number;
+    if ((d1 < 0 ? -d1 : d1) <= (d2 < 0 ? -d2 : d2)) {
+      g1 = gaussian(d1);
+      g2 = (g1 * sd) / kd;
+    } else {
+      g2 = gaussian(d2);
+      g1 = (g2 * kd) / sd;
+    }
+    const bv = b * iVst;
+
+    let price: number;
+    let delta: number;
+    let gamma: number;
+    let vega: number; // raw dV/dsigma
+    let dvdt: number; // dV/dtau
+    let rho: number; // raw dV/dr
+    let vanna: number; // raw d2V/dS dsigma
+    let volga: number; // raw d2V/dsigma2
+    let ddeltadt: number; // d(delta)/dtau
+
+    if (payoff === PAYOFF_VANILLA) {
+      const n1 = INV_SQRT_2PI * g1;
+      const cdf1 = normCdfWithGaussian(phi * d1, g1);
+      const cdf2 = normCdfWithGaussian(phi * d2, g2);
+      const p = phi * (sd * cdf1 - kd * cdf2);
+      price = p > 0 ? p : 0; // rounding can leave a worthless wing a hair below zero
+      const qn = dfQ * n1;
+      delta = phi * dfQ * cdf1;
+      gamma = qn * iS * iVst;
+      vega = sd * n1 * sqrtT;
+      dvdt = sd * n1 * vol * sqrtT * half + phi * ((b - r) * sd * cdf1 + r * kd * cdf2);
+      rho = rhoCarry !== 0 ? phi * tau * kd * cdf2 : -tau * price;
+      vanna = -qn * d2 * iVol;
+      volga = vega * d1 * d2 * iVol;
+      ddeltadt = phi * (b - r) * dfQ * cdf1 + qn * (bv - d2 * half);
+    } else if (payoff === PAYOFF_CASH) {
+      const n2 = INV_SQRT_2PI * g2;
+      const cdf2 = normCdfWithGaussian(phi * d2, g2);
+      const a = cash * dfR;
+      const an = phi * a * n2; // phi A e^{-r tau} n(d2)
+      const dd2dt = bv - d1 * half; // d(d2)/dtau
+      price = a * cdf2;
+      delta = an * iS * iVst;
+      gamma = -delta * d1 * iS * iVst;
+      vega = -an * d1 * iVol;
+      dvdt = an * dd2dt - r * price;
+      rho = rhoCarry !== 0 ? an * sqrtT * iVol - tau * price : -tau * price;
+      vanna = an * (d1 * d2 - 1) * iS * iVol * iVst;
+      volga = -an * (d1 * d1 * d2 - d1 - d2) * iVol * iVol;
+      ddeltadt = -delta * (r + d2 * dd2dt + half);
+    } else {
+      const n1 = INV_SQRT_2PI * g1;
+      const cdf1 = normCdfWithGaussian(phi * d1, g1);
+      const qn = phi * dfQ * n1; // phi e^{(b-r) tau} n(d1)
+      const dd1dt = bv - d2 * half; // d(d1)/dtau
+      price = sd * cdf1;
+      delta = dfQ * cdf1 + qn * iVst;
+      gamma = -qn * d2 * iS * iVst * iVst;
+      vega = -s * qn * d2 * iVol;
+      dvdt = (b - r) * price + s * qn * dd1dt;
+      rho = rhoCarry !== 0 ? s * qn * sqrtT * iVol : -tau * price;
+      vanna = qn * ((d1 * d2 - 1) * iVst - d2) * iVol;
+      volga = -s * qn * (d1 * d2 * d2 - d1 - d2) * iVol * iVol;
+      ddeltadt = (b - r) * delta - qn * (dd1dt * d2 + half) * iVst;
+    }
+
+    oPrice[i] = price;
+    oDelta[i] = delta;
+    oGamma[i] = gamma;
+    oVega[i] = vega * PER_POINT;
+    oTheta[i] = -dvdt * PER_DAY;
+    oRho[i] = rho * PER_POINT;
+    oVanna[i] = vanna * PER_POINT;
+    oVolga[i] = volga * PER_POINT_SQ;
+    oCharm[i] = -ddeltadt * PER_DAY;
   }
-
-  const sqrtT = Math.sqrt(tau);
-  const vst = vol * sqrtT;
-  const dfR = Math.exp(-r * tau); // e^{-r tau}
-  const dfQ = Math.exp((b - r) * tau); // e^{(b-r) tau}
-  const sd = s * dfQ;
-  const kd = k * dfR;
-  const d1 = (Math.log(s / k) + (b + 0.5 * vol * vol) * tau) / vst;
-  const d2 = d1 - vst;
-  // Take the Gaussian at whichever of d1, d2 is nearer 0 (it cannot underflow while the other
-  // still matters) and scale it by F/K = sd/kd to get the other.
-  let g1: number;
-  let g2: number;
-  if ((d1 < 0 ? -d1 : d1) <= (d2 < 0 ? -d2 : d2)) {
-    g1 = gaussian(d1);
-    g2 = g1 * (sd / kd);
-  } else {
-    g2 = gaussian(d2);
-    g1 = g2 * (kd / sd);
-  }
-  const dd1dt = b / vst - d2 / (2 * tau); // d(d1)/dtau
-  const dd2dt = b / vst - d1 / (2 * tau); // d(d2)/dtau
-
-  let price: number;
-  let delta: number;
-  let gamma: number;
-  let vega: number; // raw dV/dsigma
-  let dvdt: number; // dV/dtau
-  let rho: number; // raw dV/dr
-  let vanna: number; // raw d2V/dS dsigma
-  let volga: number; // raw d2V/dsigma2
-  let ddeltadt: number; // d(delta)/dtau
-
-  if (payoff === PAYOFF_VANILLA) {
-    const n1 = INV_SQRT_2PI * g1;
-    const cdf1 = normCdfWithGaussian(phi * d1, g1);
-    const cdf2 = normCdfWithGaussian(phi * d2, g2);
-    const p = phi * (sd * cdf1 - kd * cdf2);
-    price = p > 0 ? p : 0; // rounding can leave a worthless wing a hair below zero
-    delta = phi * dfQ * cdf1;
-    gamma = (dfQ * n1) / (s * vst);
-    vega = sd * n1 * sqrtT;
-    dvdt = (sd * n1 * vol) / (2 * sqrtT) + phi * ((b - r) * sd * cdf1 + r * kd * cdf2);
-    rho = rhoCarry !== 0 ? phi * tau * kd * cdf2 : -tau * price;
-    vanna = (-dfQ * n1 * d2) / vol;
-    volga = (vega * d1 * d2) / vol;
-    ddeltadt = dfQ * (phi * (b - r) * cdf1 + n1 * dd1dt);
-  } else if (payoff === PAYOFF_CASH) {
-    const n2 = INV_SQRT_2PI * g2;
-    const cdf2 = normCdfWithGaussian(phi * d2, g2);
-    const a = cash * dfR;
-    const an = phi * a * n2; // phi A e^{-r tau} n(d2)
-    price = a * cdf2;
-    delta = an / (s * vst);
-    gamma = (-an * d1) / (s * s * vst * vst);
-    vega = (-an * d1) / vol;
-    dvdt = -r * price + an * dd2dt;
-    rho = rhoCarry !== 0 ? -tau * price + (an * sqrtT) / vol : -tau * price;
-    vanna = (an * (d1 * d2 - 1)) / (s * vol * vst);
-    volga = (-an * (d1 * d1 * d2 - d1 - d2)) / (vol * vol);
-    ddeltadt = delta * (-r - d2 * dd2dt - 1 / (2 * tau));
-  } else {
-    const n1 = INV_SQRT_2PI * g1;
-    const cdf1 = normCdfWithGaussian(phi * d1, g1);
-    const qn = phi * dfQ * n1; // phi e^{(b-r) tau} n(d1)
-    price = sd * cdf1;
-    delta = dfQ * cdf1 + qn / vst;
-    gamma = (-qn * d2) / (s * vst * vst);
-    vega = (-s * qn * d2) / vol;
-    dvdt = (b - r) * price + s * qn * dd1dt;
-    rho = rhoCarry !== 0 ? (s * qn * sqrtT) / vol : -tau * price;
-    vanna = (qn * ((d1 * d2 - 1) / vst - d2)) / vol;
-    volga = (-s * qn * (d1 * d2 * d2 - d1 - d2)) / (vol * vol);
-    ddeltadt = (b - r) * delta - (qn * (dd1dt * d2 + 1 / (2 * tau))) / vst;
-  }
-
-  out.price[i] = price;
-  out.delta[i] = delta;
-  out.gamma[i] = gamma;
-  out.vega[i] = vega * PER_POINT;
-  out.theta[i] = -dvdt / DAYS;
-  out.rho[i] = rho * PER_POINT;
-  out.vanna[i] = vanna * PER_POINT;
-  out.volga[i] = volga * PER_POINT_SQ;
-  out.charm[i] = -ddeltadt / DAYS;
 }
