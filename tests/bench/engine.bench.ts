@@ -16,7 +16,14 @@
 import { RiskEngine } from '@keelson/engine';
 import { MemoryBus } from '@keelson/bus';
 import { EngineRunner, type RunnerEngine } from '@keelson/runtime';
-import { allocGreeksBatch, allocOptionBatch, MS_PER_YEAR, priceBatch, surfaceVol, zeroRate } from '@keelson/quant';
+import {
+  allocGreeksBatch,
+  allocOptionBatch,
+  MS_PER_YEAR,
+  priceBatch,
+  surfaceVol,
+  zeroRate,
+} from '@keelson/quant';
 import { decodeInput, inputKey, inputTopic, TOPICS } from '@keelson/shared-types';
 import type { AlertMsg, ExposureMsg, InputMsg, RejectedMsg, StaleFeedMsg } from '@keelson/shared-types';
 
@@ -59,11 +66,25 @@ const spot0 = (u: number) => 40 + (u % 160);
 /** The book as contract messages, generated lazily so that the heap measure holds none of them. */
 function* bookMessages(startMs: number): Generator<InputMsg> {
   const ts = iso(startMs);
-  yield { type: 'curve', currency: 'USD', ts, tenors: [0.25, 0.5, 1, 2, 5], zeroRates: [0.043, 0.042, 0.04, 0.038, 0.037] };
+  yield {
+    type: 'curve',
+    currency: 'USD',
+    ts,
+    tenors: [0.25, 0.5, 1, 2, 5],
+    zeroRates: [0.043, 0.042, 0.04, 0.038, 0.037],
+  };
   for (let u = 0; u < UNDERLYINGS; u++) {
     const name = undName(u);
     const s = spot0(u);
-    yield { type: 'underlying', underlying: name, kind: 'equity', currency: 'USD', dividendYield: (u % 5) * 0.005, dividends: [], ts };
+    yield {
+      type: 'underlying',
+      underlying: name,
+      kind: 'equity',
+      currency: 'USD',
+      dividendYield: (u % 5) * 0.005,
+      dividends: [],
+      ts,
+    };
     yield {
       type: 'vol-surface',
       underlying: name,
@@ -77,9 +98,30 @@ function* bookMessages(startMs: number): Generator<InputMsg> {
       ],
     };
     yield { type: 'spot', underlying: name, price: s, ts };
-    yield { type: 'limit', limitId: `L-${name}-DELTA`, scope: { underlying: name }, metric: 'delta', max: 1e7, min: -1e7, warnAt: 0.8, hysteresis: 0.05, ts };
+    yield {
+      type: 'limit',
+      limitId: `L-${name}-DELTA`,
+      scope: { underlying: name },
+      metric: 'delta',
+      max: 1e7,
+      min: -1e7,
+      warnAt: 0.8,
+      hysteresis: 0.05,
+      ts,
+    };
   }
-  for (const desk of DESKS) yield { type: 'limit', limitId: `L-${desk}-VEGA`, scope: { desk }, metric: 'vega', max: 5e8, min: -5e8, warnAt: 0.8, hysteresis: 0.05, ts };
+  for (const desk of DESKS)
+    yield {
+      type: 'limit',
+      limitId: `L-${desk}-VEGA`,
+      scope: { desk },
+      metric: 'vega',
+      max: 5e8,
+      min: -5e8,
+      warnAt: 0.8,
+      hysteresis: 0.05,
+      ts,
+    };
   const rnd = lcg(7);
   for (let j = 0; j < POSITIONS; j++) {
     const u = j % UNDERLYINGS;
@@ -97,7 +139,14 @@ function* bookMessages(startMs: number): Generator<InputMsg> {
       desk,
       book,
       underlying: undName(u),
-      instrument: { kind: 'option', right: k % 2 ? 'put' : 'call', payoff: 'vanilla', strike, expiry: iso(expiry), multiplier: 100 },
+      instrument: {
+        kind: 'option',
+        right: k % 2 ? 'put' : 'call',
+        payoff: 'vanilla',
+        strike,
+        expiry: iso(expiry),
+        multiplier: 100,
+      },
       quantity: Math.round((rnd() - 0.5) * 100) || 1,
       price: 2,
     };
@@ -175,16 +224,30 @@ class NaiveEngine implements RunnerEngine {
         if (m.currency === 'USD') this.curve = { tenors: m.tenors, zeroRates: m.zeroRates };
         return 'accepted';
       case 'vol-surface':
-        this.grids[this.undIndex(m.underlying)] = { expiriesMs: m.expiries.map(Date.parse), strikes: m.strikes, vols: m.vols };
+        this.grids[this.undIndex(m.underlying)] = {
+          expiriesMs: m.expiries.map(Date.parse),
+          strikes: m.strikes,
+          vols: m.vols,
+        };
         return 'accepted';
       case 'spot':
         this.spot[this.undIndex(m.underlying)] = m.price;
         this.revalueAll();
         return 'accepted';
       case 'trade':
-        if (m.action !== 'new' || this.tradeIds.has(m.tradeId) || m.instrument.kind !== 'option') return 'duplicate';
+        if (m.action !== 'new' || this.tradeIds.has(m.tradeId) || m.instrument.kind !== 'option')
+          return 'duplicate';
         this.tradeIds.add(m.tradeId);
-        this.addPosition(m.desk, m.book, m.underlying, m.instrument.right === 'put' ? 1 : 0, m.instrument.strike, Date.parse(m.instrument.expiry), m.quantity * m.instrument.multiplier, m.price);
+        this.addPosition(
+          m.desk,
+          m.book,
+          m.underlying,
+          m.instrument.right === 'put' ? 1 : 0,
+          m.instrument.strike,
+          Date.parse(m.instrument.expiry),
+          m.quantity * m.instrument.multiplier,
+          m.price,
+        );
         return 'accepted';
       default:
         return 'accepted';
@@ -204,7 +267,14 @@ class NaiveEngine implements RunnerEngine {
   }
 
   private node(dims: ExposureMsg['node']): number {
-    const key = [dims.desk && `desk=${dims.desk}`, dims.book && `book=${dims.book}`, dims.underlying && `underlying=${dims.underlying}`].filter(Boolean).join('/') || 'firm';
+    const key =
+      [
+        dims.desk && `desk=${dims.desk}`,
+        dims.book && `book=${dims.book}`,
+        dims.underlying && `underlying=${dims.underlying}`,
+      ]
+        .filter(Boolean)
+        .join('/') || 'firm';
     let i = this.nodeIndex.get(key);
     if (i === undefined) {
       i = this.nodeKeys.length;
@@ -215,7 +285,16 @@ class NaiveEngine implements RunnerEngine {
     return i;
   }
 
-  private addPosition(desk: string, book: string, underlying: string, right: number, strike: number, expiryMs: number, qm: number, price: number): void {
+  private addPosition(
+    desk: string,
+    book: string,
+    underlying: string,
+    right: number,
+    strike: number,
+    expiryMs: number,
+    qm: number,
+    price: number,
+  ): void {
     if (this.n === this.cap) this.grow();
     const p = this.n++;
     this.pUnd[p] = this.undIndex(underlying);
@@ -224,7 +303,13 @@ class NaiveEngine implements RunnerEngine {
     this.pExpiry[p] = expiryMs;
     this.pQm[p] = qm;
     this.pCost[p] = qm * price;
-    const ids = [this.node({}), this.node({ desk }), this.node({ desk, book }), this.node({ desk, book, underlying }), this.node({ underlying })];
+    const ids = [
+      this.node({}),
+      this.node({ desk }),
+      this.node({ desk, book }),
+      this.node({ desk, book, underlying }),
+      this.node({ underlying }),
+    ];
     this.pNodes.set(ids, p * 5);
   }
 
@@ -260,7 +345,14 @@ class NaiveEngine implements RunnerEngine {
     const now = this.now();
     const b = this.batch;
     // Pillar year fractions once per underlying per tick, as RiskEngine does when time moves.
-    const grids = this.grids.map((g) => g && { pillarTaus: g.expiriesMs.map((e) => (e - now) / MS_PER_YEAR), strikes: g.strikes, vols: g.vols });
+    const grids = this.grids.map(
+      (g) =>
+        g && {
+          pillarTaus: g.expiriesMs.map((e) => (e - now) / MS_PER_YEAR),
+          strikes: g.strikes,
+          vols: g.vols,
+        },
+    );
     for (let p = 0; p < n; p++) {
       const u = this.pUnd[p]!;
       const tau = (this.pExpiry[p]! - now) / MS_PER_YEAR;
@@ -349,7 +441,13 @@ class NaiveEngine implements RunnerEngine {
 // ---------------------------------------------------------------------------------------------
 // The tick driver: offers `rate` spot ticks per second, each stamped with the wall time at which
 // it is published (tick-to-publish starts there), random underlyings, small random moves.
-async function offer(bus: MemoryBus, rate: number, seconds: number, rnd: () => number, prices: Float64Array): Promise<{ offered: number; target: number }> {
+async function offer(
+  bus: MemoryBus,
+  rate: number,
+  seconds: number,
+  rnd: () => number,
+  prices: Float64Array,
+): Promise<{ offered: number; target: number }> {
   const t0 = performance.now();
   let sent = 0;
   const endMs = seconds * 1000;
@@ -364,14 +462,20 @@ async function offer(bus: MemoryBus, rate: number, seconds: number, rnd: () => n
         const u = Math.floor(rnd() * UNDERLYINGS);
         prices[u] = prices[u]! * (1 + (rnd() - 0.5) * 0.002);
         const name = undName(u);
-        recs[i] = { key: name, value: `{"type":"spot","underlying":"${name}","price":${prices[u]},"ts":"${ts}"}` };
+        recs[i] = {
+          key: name,
+          value: `{"type":"spot","underlying":"${name}","price":${prices[u]},"ts":"${ts}"}`,
+        };
       }
       // Waits when the runner's queue is full (back-pressure), but never past the phase's end: a
       // pipeline that has fallen far behind must not hold the benchmark hostage.
       const pub = bus.publish(TOPICS.spots, recs);
       pub.catch(() => undefined); // rejected only when the phase closes the bus under it
       const left = endMs - (performance.now() - t0);
-      const inTime = await Promise.race([pub.then(() => true), new Promise<boolean>((r) => setTimeout(() => r(false), Math.max(0, left)))]);
+      const inTime = await Promise.race([
+        pub.then(() => true),
+        new Promise<boolean>((r) => setTimeout(() => r(false), Math.max(0, left))),
+      ]);
       sent += due;
       if (!inTime) break;
     }
@@ -409,7 +513,10 @@ async function endPhase(p: Phase): Promise<void> {
 /** Waits for the backlog to clear, up to `capMs`; returns how long it took, or Infinity. */
 async function drainWithin(bus: MemoryBus, capMs: number): Promise<number> {
   const t0 = performance.now();
-  const done = await Promise.race([bus.idle().then(() => true), new Promise<boolean>((r) => setTimeout(() => r(false), capMs))]);
+  const done = await Promise.race([
+    bus.idle().then(() => true),
+    new Promise<boolean>((r) => setTimeout(() => r(false), capMs)),
+  ]);
   return done ? performance.now() - t0 : Number.POSITIVE_INFINITY;
 }
 
@@ -425,7 +532,12 @@ interface StepResult {
  * Keeping up: the driver got at least 97% of the offered ticks onto the bus (back-pressure did not
  * hold it up), and the backlog left when it stopped cleared within 250 ms.
  */
-async function sustainedRate(engine: RunnerEngine, rates: number[], maxBatch?: number, seed = 11): Promise<StepResult[]> {
+async function sustainedRate(
+  engine: RunnerEngine,
+  rates: number[],
+  maxBatch?: number,
+  seed = 11,
+): Promise<StepResult[]> {
   const rnd = lcg(seed);
   const prices = Float64Array.from({ length: UNDERLYINGS }, (_, u) => spot0(u));
   const out: StepResult[] = [];
@@ -438,7 +550,9 @@ async function sustainedRate(engine: RunnerEngine, rates: number[], maxBatch?: n
     const keptUp = offered >= 0.97 * target && drainMs <= 250;
     out.push({ rate, keptUp, offeredShare: offered / target, drainMs, p99: p99 ?? Number.NaN });
     await endPhase(p);
-    process.stdout.write(`  ${rate.toString().padStart(7)} ticks/s: ${keptUp ? 'keeps up' : 'falls behind'} (offered ${(100 * offered / target).toFixed(0)}%, backlog cleared in ${fmtMs(drainMs)}, p99 ${fmtMs(p99 ?? NaN)})\n`);
+    process.stdout.write(
+      `  ${rate.toString().padStart(7)} ticks/s: ${keptUp ? 'keeps up' : 'falls behind'} (offered ${((100 * offered) / target).toFixed(0)}%, backlog cleared in ${fmtMs(drainMs)}, p99 ${fmtMs(p99 ?? NaN)})\n`,
+    );
     if (!keptUp) break;
   }
   return out;
@@ -453,7 +567,13 @@ interface LatencyResult {
   keptUp: boolean;
 }
 
-async function latencyAt(engine: RunnerEngine, revals: () => number, rate: number, publishIntervalMs: number, opts: { maxBatch?: number; capMs?: number; warmUp?: boolean } = {}): Promise<LatencyResult> {
+async function latencyAt(
+  engine: RunnerEngine,
+  revals: () => number,
+  rate: number,
+  publishIntervalMs: number,
+  opts: { maxBatch?: number; capMs?: number; warmUp?: boolean } = {},
+): Promise<LatencyResult> {
   const rnd = lcg(23);
   const prices = Float64Array.from({ length: UNDERLYINGS }, (_, u) => spot0(u));
   const capMs = opts.capMs ?? 3_000;
@@ -488,13 +608,17 @@ function fmtMs(ms: number): string {
   if (!Number.isFinite(ms)) return ms > 0 ? 'never (cap hit)' : 'n/a';
   return ms >= 1000 ? `${(ms / 1000).toFixed(2)} s` : `${ms.toFixed(1)} ms`;
 }
-const fmt = (n: number, d = 0) => (Number.isFinite(n) ? n.toLocaleString('en-US', { maximumFractionDigits: d }) : 'n/a');
-const ratio = (a: number, b: number) => (Number.isFinite(a) && Number.isFinite(b) && b !== 0 ? `${(a / b).toFixed(1)}x` : 'n/a');
+const fmt = (n: number, d = 0) =>
+  Number.isFinite(n) ? n.toLocaleString('en-US', { maximumFractionDigits: d }) : 'n/a';
+const ratio = (a: number, b: number) =>
+  Number.isFinite(a) && Number.isFinite(b) && b !== 0 ? `${(a / b).toFixed(1)}x` : 'n/a';
 
 async function main(): Promise<void> {
   if (!gc) process.stdout.write('warning: run with --expose-gc for the heap figures (npm run bench does)\n');
   const startMs = Date.now();
-  process.stdout.write(`book: ${POSITIONS} option positions, ${UNDERLYINGS} underlyings, ${UNDERLYINGS * INSTRUMENTS_PER_UNDERLYING} instruments, ${DESKS.length * BOOKS_PER_DESK} books; node ${process.version}\n`);
+  process.stdout.write(
+    `book: ${POSITIONS} option positions, ${UNDERLYINGS} underlyings, ${UNDERLYINGS * INSTRUMENTS_PER_UNDERLYING} instruments, ${DESKS.length * BOOKS_PER_DESK} books; node ${process.version}\n`,
+  );
 
   // ---- incremental engine -------------------------------------------------------------------
   const heap0 = heapAfterGc();
@@ -507,15 +631,24 @@ async function main(): Promise<void> {
   const heap1 = heapAfterGc();
   const stats = engine.stats();
   const incHeapPerPos = (heap1 - heap0) / POSITIONS;
-  process.stdout.write(`\nRiskEngine (incremental): loaded ${inputs} inputs in ${loadSeconds.toFixed(1)} s; ${stats.positions} positions, ${stats.instruments} instruments, ${fmt(incHeapPerPos)} B heap/position\n`);
+  process.stdout.write(
+    `\nRiskEngine (incremental): loaded ${inputs} inputs in ${loadSeconds.toFixed(1)} s; ${stats.positions} positions, ${stats.instruments} instruments, ${fmt(incHeapPerPos)} B heap/position\n`,
+  );
   process.stdout.write('sustained rate (publish interval 100 ms):\n');
-  const incRates = await sustainedRate(engine, QUICK ? [10_000, 40_000] : [5_000, 10_000, 20_000, 40_000, 80_000, 160_000, 320_000]);
+  const incRates = await sustainedRate(
+    engine,
+    QUICK ? [10_000, 40_000] : [5_000, 10_000, 20_000, 40_000, 80_000, 160_000, 320_000],
+  );
   const incBest = Math.max(0, ...incRates.filter((r) => r.keptUp).map((r) => r.rate));
   const incRevals = () => engine.stats().revaluations;
   const inc100 = await latencyAt(engine, incRevals, 10_000, 100);
-  process.stdout.write(`  at 10 000 ticks/s, interval 100 ms: p50 ${fmtMs(inc100.p50)} p99 ${fmtMs(inc100.p99)}, ${fmt(inc100.revalsPerSec)} revaluations/s, ${inc100.keptUp ? 'keeps up' : 'falls behind'}\n`);
+  process.stdout.write(
+    `  at 10 000 ticks/s, interval 100 ms: p50 ${fmtMs(inc100.p50)} p99 ${fmtMs(inc100.p99)}, ${fmt(inc100.revalsPerSec)} revaluations/s, ${inc100.keptUp ? 'keeps up' : 'falls behind'}\n`,
+  );
   const inc0 = await latencyAt(engine, incRevals, 10_000, 0);
-  process.stdout.write(`  at 10 000 ticks/s, every batch:     p50 ${fmtMs(inc0.p50)} p99 ${fmtMs(inc0.p99)}, ${fmt(inc0.revalsPerSec)} revaluations/s, ${inc0.keptUp ? 'keeps up' : 'falls behind'}\n`);
+  process.stdout.write(
+    `  at 10 000 ticks/s, every batch:     p50 ${fmtMs(inc0.p50)} p99 ${fmtMs(inc0.p99)}, ${fmt(inc0.revalsPerSec)} revaluations/s, ${inc0.keptUp ? 'keeps up' : 'falls behind'}\n`,
+  );
 
   // ---- naive engine ---------------------------------------------------------------------------
   if (process.env.BENCH_SKIP_NAIVE === '1') process.exit(0); // for profiling the incremental path
@@ -535,11 +668,17 @@ async function main(): Promise<void> {
   const reps = QUICK ? 3 : 10;
   for (let i = 0; i < reps; i++) naive.revalueAll();
   const naiveTickMs = (performance.now() - t1) / reps;
-  process.stdout.write(`\nNaiveEngine (whole book per tick): loaded in ${nLoadSeconds.toFixed(1)} s; ${fmt(naiveHeapPerPos)} B heap/position; one tick = ${naiveTickMs.toFixed(1)} ms of repricing\n`);
+  process.stdout.write(
+    `\nNaiveEngine (whole book per tick): loaded in ${nLoadSeconds.toFixed(1)} s; ${fmt(naiveHeapPerPos)} B heap/position; one tick = ${naiveTickMs.toFixed(1)} ms of repricing\n`,
+  );
   process.stdout.write('sustained rate (publish interval 100 ms):\n');
   const naiveRates = await sustainedRate(naive, QUICK ? [2, 10] : [1, 2, 5, 10, 20, 40], NAIVE_BATCH);
   const naiveBest = Math.max(0, ...naiveRates.filter((r) => r.keptUp).map((r) => r.rate));
-  const naiveLat = await latencyAt(naive, () => naive.revaluations, 10_000, 100, { maxBatch: NAIVE_BATCH, capMs: 2_000, warmUp: false });
+  const naiveLat = await latencyAt(naive, () => naive.revaluations, 10_000, 100, {
+    maxBatch: NAIVE_BATCH,
+    capMs: 2_000,
+    warmUp: false,
+  });
   process.stdout.write(
     `  at 10 000 ticks/s, interval 100 ms: p50 ${fmtMs(naiveLat.p50)} p99 ${fmtMs(naiveLat.p99)} over the ${fmt(naiveLat.published)} of ${fmt(naiveLat.offered)} ticks it published, ${fmt(naiveLat.revalsPerSec)} position repricings/s, ${naiveLat.keptUp ? 'keeps up' : 'falls behind'}\n`,
   );
@@ -547,14 +686,37 @@ async function main(): Promise<void> {
   // ---- side by side --------------------------------------------------------------------------
   const rows: [string, string, string, string][] = [
     ['highest sustained ticks/s (tested steps)', fmt(incBest), fmt(naiveBest), ratio(incBest, naiveBest)],
-    ['p50 tick-to-publish @10k/s, 100 ms interval', fmtMs(inc100.p50), fmtMs(naiveLat.p50), ratio(naiveLat.p50, inc100.p50)],
-    ['p99 tick-to-publish @10k/s, 100 ms interval', fmtMs(inc100.p99), fmtMs(naiveLat.p99), ratio(naiveLat.p99, inc100.p99)],
+    [
+      'p50 tick-to-publish @10k/s, 100 ms interval',
+      fmtMs(inc100.p50),
+      fmtMs(naiveLat.p50),
+      ratio(naiveLat.p50, inc100.p50),
+    ],
+    [
+      'p99 tick-to-publish @10k/s, 100 ms interval',
+      fmtMs(inc100.p99),
+      fmtMs(naiveLat.p99),
+      ratio(naiveLat.p99, inc100.p99),
+    ],
     ['p99 tick-to-publish @10k/s, every batch', fmtMs(inc0.p99), '-', '-'],
-    ['pricings/s @10k/s (instruments | positions)', fmt(inc100.revalsPerSec), fmt(naiveLat.revalsPerSec), ratio(naiveLat.revalsPerSec, inc100.revalsPerSec)],
-    ['heap + array buffers per position (bytes)', fmt(incHeapPerPos), fmt(naiveHeapPerPos), ratio(incHeapPerPos, naiveHeapPerPos)],
+    [
+      'pricings/s @10k/s (instruments | positions)',
+      fmt(inc100.revalsPerSec),
+      fmt(naiveLat.revalsPerSec),
+      ratio(naiveLat.revalsPerSec, inc100.revalsPerSec),
+    ],
+    [
+      'heap + array buffers per position (bytes)',
+      fmt(incHeapPerPos),
+      fmt(naiveHeapPerPos),
+      ratio(incHeapPerPos, naiveHeapPerPos),
+    ],
   ];
-  process.stdout.write(`\n${'figure'.padEnd(46)}${'incremental'.padStart(16)}${'naive'.padStart(18)}${'ratio'.padStart(10)}\n`);
-  for (const [a, b, c, d] of rows) process.stdout.write(`${a.padEnd(46)}${b.padStart(16)}${c.padStart(18)}${d.padStart(10)}\n`);
+  process.stdout.write(
+    `\n${'figure'.padEnd(46)}${'incremental'.padStart(16)}${'naive'.padStart(18)}${'ratio'.padStart(10)}\n`,
+  );
+  for (const [a, b, c, d] of rows)
+    process.stdout.write(`${a.padEnd(46)}${b.padStart(16)}${c.padStart(18)}${d.padStart(10)}\n`);
   const meets10k = inc0.keptUp && inc100.keptUp;
   process.stdout.write(
     `\ntargets: keeps up with 10 000 ticks/s: ${meets10k ? 'yes' : 'NO'}; p99 <= 50 ms: ${inc0.p99 <= 50 ? 'yes' : 'NO'} publishing every batch, ` +

@@ -42,8 +42,14 @@ describe('MemoryBus', () => {
     const bus = new MemoryBus({ partitions: { spots: 4 } });
     const got: BusRecord[] = [];
     await bus.subscribe(['spots', 'trades'], async (b) => void got.push(...b));
-    await bus.publish('spots', recs(40, (i) => `U${i % 5}`));
-    await bus.publish('trades', recs(3, () => 'U1'));
+    await bus.publish(
+      'spots',
+      recs(40, (i) => `U${i % 5}`),
+    );
+    await bus.publish(
+      'trades',
+      recs(3, () => 'U1'),
+    );
     await bus.idle();
     const byKey = new Map<string, Set<number>>();
     for (const r of got.filter((r) => r.topic === 'spots')) {
@@ -113,7 +119,12 @@ describe('MemoryBus', () => {
       await new Promise((r) => setTimeout(r, 1));
       seen.push(...b.map((r) => r.value));
     });
-    const a = bus.publish('a', [{ key: null, value: 'a1' }, { key: null, value: 'a2' }, { key: null, value: 'a3' }, { key: null, value: 'a4' }]);
+    const a = bus.publish('a', [
+      { key: null, value: 'a1' },
+      { key: null, value: 'a2' },
+      { key: null, value: 'a3' },
+      { key: null, value: 'a4' },
+    ]);
     const b = bus.publish('a', [{ key: null, value: 'b1' }]);
     await Promise.all([a, b]);
     await bus.idle();
@@ -124,7 +135,10 @@ describe('MemoryBus', () => {
     const bus = new MemoryBus({ queueCapacity: 4, maxBatch: 4 });
     const out: string[] = [];
     await bus.subscribe(['in'], async (b) => {
-      await bus.publish('out', b.map((r) => ({ key: null, value: `o${r.value}` })));
+      await bus.publish(
+        'out',
+        b.map((r) => ({ key: null, value: `o${r.value}` })),
+      );
     });
     await bus.subscribe(['out'], async (b) => void out.push(...b.map((r) => r.value)));
     await bus.publish('in', recs(20));
@@ -134,7 +148,10 @@ describe('MemoryBus', () => {
 
   it('stops a subscription whose handler fails and reports the failed batch', async () => {
     const errors: unknown[] = [];
-    const bus = new MemoryBus({ maxBatch: 2, onHandlerError: (e, batch) => errors.push([String(e), batch.length]) });
+    const bus = new MemoryBus({
+      maxBatch: 2,
+      onHandlerError: (e, batch) => errors.push([String(e), batch.length]),
+    });
     let calls = 0;
     await bus.subscribe(['a'], async () => {
       calls++;

@@ -129,7 +129,8 @@ export class MemoryBus implements Bus {
   partitionsOf(topic: string): number {
     const p = this.opts.partitions;
     const n = typeof p === 'number' ? p : (p?.[topic] ?? 1);
-    if (!Number.isInteger(n) || n < 1) throw new RangeError(`MemoryBus partitions for '${topic}' must be an integer >= 1`);
+    if (!Number.isInteger(n) || n < 1)
+      throw new RangeError(`MemoryBus partitions for '${topic}' must be an integer >= 1`);
     return n;
   }
 

@@ -1,6 +1,11 @@
 import { afterEach, describe, expect, it } from 'vitest';
 import type { ExposureMsg } from '@keelson/shared-types';
-import { matchesNodePrefix, startHttpServer, type HttpServerOptions, type RunningHttpServer } from './server.ts';
+import {
+  matchesNodePrefix,
+  startHttpServer,
+  type HttpServerOptions,
+  type RunningHttpServer,
+} from './server.ts';
 
 const ex = (nodeKey: string): ExposureMsg => ({
   type: 'exposure',
@@ -34,7 +39,10 @@ async function start(extra: Partial<HttpServerOptions> = {}) {
     port: 0,
     exposures: () => [ex('firm'), ex('desk=RATES'), ex('desk=RATES/book=R1'), ex('desk=RATESX')],
     alerts: () => ({ open: [], recent: [] }),
-    readiness: () => ({ stateRebuilt: { ok: ready, detail: ready ? 'bootstrap applied' : 'applying bootstrap' }, busConnected: { ok: true } }),
+    readiness: () => ({
+      stateRebuilt: { ok: ready, detail: ready ? 'bootstrap applied' : 'applying bootstrap' },
+      busConnected: { ok: true },
+    }),
     metrics: { text: async () => 'keelson_up 1\n', contentType: 'text/plain; version=0.0.4; charset=utf-8' },
     board: (req, res) => {
       if (req.url !== '/') return false;
@@ -59,7 +67,11 @@ describe('HTTP server', () => {
     const { base, setReady } = await start();
     let r = await fetch(`${base}/readyz`);
     expect(r.status).toBe(503);
-    expect(await r.json()).toMatchObject({ ready: false, waitingFor: ['stateRebuilt'], checks: { stateRebuilt: { detail: 'applying bootstrap' } } });
+    expect(await r.json()).toMatchObject({
+      ready: false,
+      waitingFor: ['stateRebuilt'],
+      checks: { stateRebuilt: { detail: 'applying bootstrap' } },
+    });
     setReady(true);
     r = await fetch(`${base}/readyz`);
     expect(r.status).toBe(200);
@@ -92,8 +104,12 @@ describe('HTTP server', () => {
   it('guards data endpoints and /metrics with the token, never the probes', async () => {
     const { base } = await start({ token: 's3cret' });
     expect((await fetch(`${base}/exposures`)).status).toBe(401);
-    expect((await fetch(`${base}/exposures`, { headers: { authorization: 'Bearer wrong' } })).status).toBe(401);
-    expect((await fetch(`${base}/exposures`, { headers: { authorization: 'Bearer s3cret' } })).status).toBe(200);
+    expect((await fetch(`${base}/exposures`, { headers: { authorization: 'Bearer wrong' } })).status).toBe(
+      401,
+    );
+    expect((await fetch(`${base}/exposures`, { headers: { authorization: 'Bearer s3cret' } })).status).toBe(
+      200,
+    );
     expect((await fetch(`${base}/alerts?access_token=s3cret`)).status).toBe(200);
     expect((await fetch(`${base}/metrics`)).status).toBe(401);
     expect((await fetch(`${base}/healthz`)).status).toBe(200);

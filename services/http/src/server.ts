@@ -50,13 +50,27 @@ export interface RunningHttpServer {
   close(): Promise<void>;
 }
 
-type Route = { methods: readonly string[]; guarded: boolean; serve: (req: IncomingMessage, res: ServerResponse, url: URL) => void | Promise<void> };
+type Route = {
+  methods: readonly string[];
+  guarded: boolean;
+  serve: (req: IncomingMessage, res: ServerResponse, url: URL) => void | Promise<void>;
+};
 
 const JSON_TYPE = 'application/json; charset=utf-8';
 
-function sendJson(res: ServerResponse, status: number, body: unknown, headers: Record<string, string> = {}): void {
+function sendJson(
+  res: ServerResponse,
+  status: number,
+  body: unknown,
+  headers: Record<string, string> = {},
+): void {
   const text = JSON.stringify(body);
-  res.writeHead(status, { 'content-type': JSON_TYPE, 'cache-control': 'no-store', 'content-length': Buffer.byteLength(text), ...headers });
+  res.writeHead(status, {
+    'content-type': JSON_TYPE,
+    'cache-control': 'no-store',
+    'content-length': Buffer.byteLength(text),
+    ...headers,
+  });
   res.end(res.req?.method === 'HEAD' ? undefined : text);
 }
 
@@ -85,7 +99,9 @@ export function matchesNodePrefix(nodeKey: string, prefix: string): boolean {
   return nodeKey === prefix || nodeKey.startsWith(prefix.endsWith('/') ? prefix : `${prefix}/`);
 }
 
-export function createHttpHandler(opts: HttpServerOptions): (req: IncomingMessage, res: ServerResponse) => void {
+export function createHttpHandler(
+  opts: HttpServerOptions,
+): (req: IncomingMessage, res: ServerResponse) => void {
   const started = (opts.now ?? Date.now)();
   const now = opts.now ?? Date.now;
   const guardMetrics = opts.guardMetrics ?? true;
@@ -93,7 +109,8 @@ export function createHttpHandler(opts: HttpServerOptions): (req: IncomingMessag
     '/healthz': {
       methods: ['GET', 'HEAD'],
       guarded: false,
-      serve: (_req, res) => sendJson(res, 200, { status: 'up', pid: process.pid, uptimeSeconds: (now() - started) / 1000 }),
+      serve: (_req, res) =>
+        sendJson(res, 200, { status: 'up', pid: process.pid, uptimeSeconds: (now() - started) / 1000 }),
     },
     '/readyz': {
       methods: ['GET', 'HEAD'],
@@ -156,12 +173,22 @@ export function createHttpHandler(opts: HttpServerOptions): (req: IncomingMessag
       return sendJson(res, 404, { error: `no such path: ${url.pathname}` });
     }
     if (!route.methods.includes(method)) {
-      return sendJson(res, 405, { error: `${method} is not allowed on ${url.pathname}` }, { allow: route.methods.join(', ') });
+      return sendJson(
+        res,
+        405,
+        { error: `${method} is not allowed on ${url.pathname}` },
+        { allow: route.methods.join(', ') },
+      );
     }
     if (route.guarded && opts.token) {
       const given = presentedToken(req, url);
       if (given === null || !tokenMatches(given, opts.token)) {
-        return sendJson(res, 401, { error: 'a valid bearer token is required' }, { 'www-authenticate': 'Bearer realm="keelson"' });
+        return sendJson(
+          res,
+          401,
+          { error: 'a valid bearer token is required' },
+          { 'www-authenticate': 'Bearer realm="keelson"' },
+        );
       }
     }
     Promise.resolve()

@@ -10,12 +10,25 @@ const spot = (u: string, price: number, ts: string): BusRecord => ({
 const trade = (u: string): BusRecord => ({
   topic: 'trades',
   key: u,
-  value: JSON.stringify({ type: 'trade', tradeId: 'T-1', version: 1, action: 'cancel', underlying: u, ts: '2026-03-02T14:30:00Z' }),
+  value: JSON.stringify({
+    type: 'trade',
+    tradeId: 'T-1',
+    version: 1,
+    action: 'cancel',
+    underlying: u,
+    ts: '2026-03-02T14:30:00Z',
+  }),
 });
 const curve: BusRecord = {
   topic: 'curves',
   key: 'USD',
-  value: JSON.stringify({ type: 'curve', currency: 'USD', ts: '2026-03-02T14:30:00Z', tenors: [1], zeroRates: [0.04] }),
+  value: JSON.stringify({
+    type: 'curve',
+    currency: 'USD',
+    ts: '2026-03-02T14:30:00Z',
+    tenors: [1],
+    zeroRates: [0.04],
+  }),
 };
 const applied = (batch: BusRecord[]) =>
   planBatch(batch)
@@ -37,17 +50,31 @@ describe('planBatch (spot conflation)', () => {
   });
 
   it('never conflates across another input of the same underlying: a trade sees the spot before it', () => {
-    const b = [spot('AX', 1, '2026-03-02T14:30:00.000Z'), trade('AX'), spot('AX', 2, '2026-03-02T14:30:00.100Z'), spot('AX', 3, '2026-03-02T14:30:00.200Z')];
+    const b = [
+      spot('AX', 1, '2026-03-02T14:30:00.000Z'),
+      trade('AX'),
+      spot('AX', 2, '2026-03-02T14:30:00.100Z'),
+      spot('AX', 3, '2026-03-02T14:30:00.200Z'),
+    ];
     expect(applied(b)).toEqual([0, 1, 3]);
   });
 
   it('a trade on another underlying does not break the run', () => {
-    const b = [spot('AX', 1, '2026-03-02T14:30:00.000Z'), trade('BY'), spot('AX', 2, '2026-03-02T14:30:00.100Z')];
+    const b = [
+      spot('AX', 1, '2026-03-02T14:30:00.000Z'),
+      trade('BY'),
+      spot('AX', 2, '2026-03-02T14:30:00.100Z'),
+    ];
     expect(applied(b)).toEqual([1, 2]);
   });
 
   it('an input not tied to one underlying (a curve) ends every run', () => {
-    const b = [spot('AX', 1, '2026-03-02T14:30:00.000Z'), spot('BY', 1, '2026-03-02T14:30:00.000Z'), curve, spot('AX', 2, '2026-03-02T14:30:00.100Z')];
+    const b = [
+      spot('AX', 1, '2026-03-02T14:30:00.000Z'),
+      spot('BY', 1, '2026-03-02T14:30:00.000Z'),
+      curve,
+      spot('AX', 2, '2026-03-02T14:30:00.100Z'),
+    ];
     expect(applied(b)).toEqual([0, 1, 2, 3]);
   });
 
@@ -62,7 +89,11 @@ describe('planBatch (spot conflation)', () => {
   });
 
   it('undecodable records neither break runs nor get skipped', () => {
-    const b = [spot('AX', 1, '2026-03-02T14:30:00.000Z'), { topic: 'spots', key: 'AX', value: '{not json' }, spot('AX', 2, '2026-03-02T14:30:00.100Z')];
+    const b = [
+      spot('AX', 1, '2026-03-02T14:30:00.000Z'),
+      { topic: 'spots', key: 'AX', value: '{not json' },
+      spot('AX', 2, '2026-03-02T14:30:00.100Z'),
+    ];
     expect(applied(b)).toEqual([1, 2]);
   });
 });

@@ -1,13 +1,13 @@
 // The embedded default of `keelson run`: everything in one process with no broker. The simulator
 // feeds the in-process bus in real time, the same EngineRunner the Kafka mode uses consumes it, and
 // the HTTP server shows the result (metrics, probes, JSON, live board).
-import { RiskEngine } from '@keelson/engine';
+import { RiskEngine, WallClock } from '@keelson/engine';
+import { MarketSim } from '@keelson/sim';
 import { MemoryBus } from '@keelson/bus';
 import { KeelsonMetrics, SseHub, startHttpServer, type RunningHttpServer } from '@keelson/http';
 import { serveBoard } from '@keelson/board';
 import type { Logger } from 'pino';
 import { AlertLog } from './alert-log.ts';
-import { ScaledClock } from './clock.ts';
 import { SimFeeder, type MarketSource } from './feeder.ts';
 import { EngineRunner, type Published } from './runner.ts';
 import { renderSummaryLine, SummaryPrinter, type SummarySample } from './summary.ts';
@@ -18,7 +18,7 @@ export interface EmbeddedOptions {
   token?: string;
   guardMetrics?: boolean;
   seed?: number;
-  /** Market clock speed relative to the wall clock; default 1. */
+  /** Market moves per wall time (the simulator's marketSpeed); timestamps stay wall time. Default 1. */
   speed?: number;
   /** Simulator size; the simulator's defaults when unset. */
   underlyings?: number;
@@ -49,20 +49,12 @@ export interface EmbeddedRuntime {
   stop(): Promise<void>;
 }
 
-async function loadSimulator(opts: EmbeddedOptions, startMs: number): Promise<MarketSource> {
-  const mod = (await import('@keelson/sim')) as { MarketSim?: new (o: Record<string, unknown>) => MarketSource };
-  if (!mod.MarketSim) throw new Error('@keelson/sim does not export MarketSim yet: the embedded mode needs the simulator');
-  const simOpts: Record<string, unknown> = { seed: opts.seed ?? 1, startMs };
-  if (opts.underlyings !== undefined) simOpts.underlyings = opts.underlyings;
-  if (opts.trades !== undefined) simOpts.trades = opts.trades;
-  return new mod.MarketSim(simOpts);
-}
-
 export async function startEmbedded(opts: EmbeddedOptions): Promise<EmbeddedRuntime> {
   const log = opts.logger.child({ component: 'embedded' });
   const speed = opts.speed ?? 1;
-  const startMs = opts.startMs ?? Date.now();
-  const clock = new ScaledClock(startMs, speed);
+  // Live mode values at the wall clock; the simulator stamps its ticks with the same clock.
+  const clock = new WallClock();
+  const startMs = opts.startMs ?? clock.now();
   const metrics = new KeelsonMetrics({ now: () => clock.now() });
   const engineOpts: ConstructorParameters<typeof RiskEngine>[0] = { clock, observer: metrics.observer };
   if (opts.reportingCurrency) engineOpts.reportingCurrency = opts.reportingCurrency;
@@ -74,7 +66,11 @@ export async function startEmbedded(opts: EmbeddedOptions): Promise<EmbeddedRunt
   const bootstrap = { total: 0 };
   const alertLog = new AlertLog(500);
   const sse = new SseHub({ now: () => clock.now() });
-  sse.setSnapshot(() => ({ exposures: engine.snapshot(), alerts: alertLog.recent(), limits: engine.limits() }));
+  sse.setSnapshot(() => ({
+    exposures: engine.snapshot(),
+    alerts: alertLog.recent(),
+    limits: engine.limits(),
+  }));
 
   const bus = new MemoryBus({
     onHandlerError: (err) => log.error({ err }, 'a bus handler failed; its subscription stopped'),
@@ -83,7 +79,11 @@ export async function startEmbedded(opts: EmbeddedOptions): Promise<EmbeddedRunt
     for (const a of p.alerts) {
       alertLog.add(a);
       sse.publishAlert(a);
-      if (a.type === 'alert') log.info({ limitId: a.limitId, nodeKey: a.nodeKey, severity: a.severity, state: a.state }, 'limit alert');
+      if (a.type === 'alert')
+        log.info(
+          { limitId: a.limitId, nodeKey: a.nodeKey, severity: a.severity, state: a.state },
+          'limit alert',
+        );
       else log.warn({ underlying: a.underlying, state: a.state }, 'feed staleness');
     }
     for (const r of p.rejected) log.warn({ source: r.source, reason: r.reason }, 'input rejected');
@@ -100,8 +100,6 @@ export async function startEmbedded(opts: EmbeddedOptions): Promise<EmbeddedRunt
     observer: metrics.observer,
     publishIntervalMs: opts.publishIntervalMs ?? 100,
     decayIntervalMs: opts.decayIntervalMs ?? 60_000,
-    tickClock: () => clock.now(),
-    timeScale: speed,
     onPublished,
     onError: (err, context) => log.error({ err, context }, 'runner fault'),
   });
@@ -122,9 +120,14 @@ export async function startEmbedded(opts: EmbeddedOptions): Promise<EmbeddedRunt
         busConnected: { ok: checks.busConnected, detail: 'in-process bus' },
         stateRebuilt: {
           ok: checks.stateRebuilt,
-          detail: checks.stateRebuilt ? `bootstrap of ${bootstrap.total} inputs applied` : 'applying the bootstrap',
+          detail: checks.stateRebuilt
+            ? `bootstrap of ${bootstrap.total} inputs applied`
+            : 'applying the bootstrap',
         },
-        feedRunning: { ok: checks.feedRunning, detail: checks.feedRunning ? 'simulator feeding' : 'simulator not started' },
+        feedRunning: {
+          ok: checks.feedRunning,
+          detail: checks.feedRunning ? 'simulator feeding' : 'simulator not started',
+        },
       }),
       events: sse,
       board: serveBoard,
@@ -138,7 +141,15 @@ export async function startEmbedded(opts: EmbeddedOptions): Promise<EmbeddedRunt
   }
   log.info({ url: http.url, speed, guarded: Boolean(opts.token) }, 'http listening');
 
-  const source = opts.source ?? (await loadSimulator(opts, startMs));
+  const source =
+    opts.source ??
+    new MarketSim({
+      seed: opts.seed ?? 1,
+      startMs,
+      marketSpeed: speed,
+      ...(opts.underlyings !== undefined ? { underlyings: opts.underlyings } : {}),
+      ...(opts.trades !== undefined ? { trades: opts.trades } : {}),
+    });
   const feeder = new SimFeeder({
     source,
     bus,
@@ -146,12 +157,29 @@ export async function startEmbedded(opts: EmbeddedOptions): Promise<EmbeddedRunt
     stepMs: opts.stepMs ?? 50,
     onError: (err) => log.error({ err }, 'simulator step failed'),
   });
+  runner.recordLatency = false;
   bootstrap.total = await feeder.publishBootstrap();
   await bus.idle();
+  // Building the book takes a while; catch up on the market time that passed meanwhile before
+  // calling the state rebuilt, so that the live feed (and its latency) starts from the present.
+  for (let i = 0; i < 20; i++) {
+    await feeder.step();
+    await bus.idle();
+    if (clock.now() - feeder.lastStepMs < 250) break;
+  }
   await runner.flushNow();
+  runner.recordLatency = true;
   checks.stateRebuilt = true;
   const st = engine.stats();
-  log.info({ inputs: bootstrap.total, positions: st.positions, instruments: st.instruments }, 'bootstrap applied');
+  log.info(
+    {
+      inputs: bootstrap.total,
+      positions: st.positions,
+      instruments: st.instruments,
+      caughtUpTo: new Date(feeder.lastStepMs).toISOString(),
+    },
+    'bootstrap applied',
+  );
   feeder.start();
   checks.feedRunning = true;
   metrics.setReady(true);
@@ -215,7 +243,7 @@ export async function startEmbedded(opts: EmbeddedOptions): Promise<EmbeddedRunt
         sse.close();
         await bus.close();
         await http.close();
-        log.info({ ...runner.stats(), feed: feeder.stats()}, 'stopped');
+        log.info({ ...runner.stats(), feed: feeder.stats() }, 'stopped');
       })()),
   };
 }

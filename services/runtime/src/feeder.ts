@@ -61,6 +61,8 @@ export class SimFeeder {
   private running: Promise<void> | null = null;
   private stopped = false;
   private readonly counters: FeederStats = { steps: 0, published: 0, malformed: 0 };
+  /** Market time the source has been stepped to (NaN before the first step). */
+  lastStepMs = Number.NaN;
 
   constructor(private readonly opts: FeederOptions) {}
 
@@ -94,8 +96,11 @@ export class SimFeeder {
     await this.running;
   }
 
-  private async step(): Promise<void> {
-    const { messages, malformed } = this.opts.source.step(this.opts.clock.now());
+  /** One step up to now; the loop's unit, public for catching up before the loop starts. */
+  async step(): Promise<void> {
+    const now = this.opts.clock.now();
+    const { messages, malformed } = this.opts.source.step(now);
+    this.lastStepMs = now;
     this.counters.steps++;
     await this.publishInOrder(messages);
     for (const raw of malformed) {

@@ -2,7 +2,6 @@ export * from './conflate.ts';
 export * from './latency.ts';
 export * from './runner.ts';
 export * from './alert-log.ts';
-export * from './clock.ts';
 export * from './feeder.ts';
 export * from './summary.ts';
 export * from './logger.ts';

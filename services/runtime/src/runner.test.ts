@@ -18,7 +18,13 @@ class FakeEngine implements RunnerEngine {
     try {
       m = JSON.parse(raw);
     } catch {
-      this.rejected.push({ type: 'rejected', reason: 'invalid JSON', source, raw, ts: '2026-03-02T14:30:00Z' });
+      this.rejected.push({
+        type: 'rejected',
+        reason: 'invalid JSON',
+        source,
+        raw,
+        ts: '2026-03-02T14:30:00Z',
+      });
       return 'rejected' as const;
     }
     if (m.boom) throw new Error('kaboom');
@@ -132,7 +138,13 @@ describe('EngineRunner', () => {
       ['underlying=BY', 30],
       ['firm', 30],
     ]);
-    expect(runner.stats()).toMatchObject({ records: 5, spots: 5, conflated: 2, accepted: 5, alertsPublished: 1 });
+    expect(runner.stats()).toMatchObject({
+      records: 5,
+      spots: 5,
+      conflated: 2,
+      accepted: 5,
+      alertsPublished: 1,
+    });
     // Tick-to-publish: the first batch's ticks waited 3 to 5 ms, the later ones 110 and 100 ms.
     expect(runner.latency.percentiles([0, 1])).toEqual([3, 110]);
     await runner.stop();
@@ -147,8 +159,16 @@ describe('EngineRunner', () => {
     await bus.subscribe(['alerts'], async () => gate); // a slow alerts consumer
     const runner = new EngineRunner({ engine, bus, publishIntervalMs: 0 });
     const handled = runner.handle([
-      { topic: 'spots', key: 'AX', value: JSON.stringify({ type: 'spot', underlying: 'AX', price: 150, ts: '2026-03-02T14:30:00Z' }) },
-      { topic: 'spots', key: 'BY', value: JSON.stringify({ type: 'spot', underlying: 'BY', price: 150, ts: '2026-03-02T14:30:00Z' }) },
+      {
+        topic: 'spots',
+        key: 'AX',
+        value: JSON.stringify({ type: 'spot', underlying: 'AX', price: 150, ts: '2026-03-02T14:30:00Z' }),
+      },
+      {
+        topic: 'spots',
+        key: 'BY',
+        value: JSON.stringify({ type: 'spot', underlying: 'BY', price: 150, ts: '2026-03-02T14:30:00Z' }),
+      },
     ]);
     let done = false;
     void handled.then(() => (done = true));
@@ -165,11 +185,19 @@ describe('EngineRunner', () => {
     const engine = new FakeEngine();
     const out = collect(bus, ['rejected']);
     const errors: string[] = [];
-    const runner = new EngineRunner({ engine, bus, onError: (e, ctx) => errors.push(`${ctx}: ${String(e)}`) });
+    const runner = new EngineRunner({
+      engine,
+      bus,
+      onError: (e, ctx) => errors.push(`${ctx}: ${String(e)}`),
+    });
     await runner.handle([
       { topic: 'trades', key: 'AX', value: '{"boom":true}', partition: 2, offset: '41' },
       { topic: 'trades', key: 'AX', value: 'garbage', partition: 2, offset: '42' },
-      { topic: 'spots', key: 'AX', value: JSON.stringify({ type: 'spot', underlying: 'AX', price: 1, ts: '2026-03-02T14:30:00Z' }) },
+      {
+        topic: 'spots',
+        key: 'AX',
+        value: JSON.stringify({ type: 'spot', underlying: 'AX', price: 1, ts: '2026-03-02T14:30:00Z' }),
+      },
     ]);
     await bus.idle();
     const dead = out.map((r) => JSON.parse(r.value));
@@ -186,11 +214,19 @@ describe('EngineRunner', () => {
     let now = 0;
     const bus = new MemoryBus();
     const engine = new FakeEngine();
-    const runner = new EngineRunner({ engine, bus, publishIntervalMs: 30, holdForExposures: true, now: () => now });
+    const runner = new EngineRunner({
+      engine,
+      bus,
+      publishIntervalMs: 30,
+      holdForExposures: true,
+      now: () => now,
+    });
     await runner.handle([{ topic: 'spots', key: 'AX', value: spot('AX', 1, 0).value }]); // due at once
     now = 5;
     let done = false;
-    const p = runner.handle([{ topic: 'spots', key: 'AX', value: spot('AX', 2, 5).value }]).then(() => (done = true));
+    const p = runner
+      .handle([{ topic: 'spots', key: 'AX', value: spot('AX', 2, 5).value }])
+      .then(() => (done = true));
     await new Promise((r) => setTimeout(r, 5));
     expect(done).toBe(false);
     now = 40;

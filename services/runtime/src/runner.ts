@@ -51,14 +51,8 @@ export interface RunnerOptions {
   decayIntervalMs?: number;
   /** Resolve a batch only after the exposure flush that carries it (see the file comment). Default false. */
   holdForExposures?: boolean;
-  /** Wall clock, epoch ms: publish times and bus-to-publish latency. Default Date.now. */
+  /** Wall clock, epoch ms: publish times, tick-to-publish and bus-to-publish latency. Default Date.now. */
   now?: () => number;
-  /**
-   * The clock the spots' own `ts` are written in (the simulator's, which may run faster than the
-   * wall) and how many times faster it runs; tick-to-publish is reported in wall milliseconds.
-   */
-  tickClock?: () => number;
-  timeScale?: number;
   metrics?: RunnerMetrics;
   /** The engine's observer: conflated spots are counted on it as accepted inputs. */
   observer?: { input?(type: string, outcome: IngestOutcome): void };
@@ -93,13 +87,16 @@ interface PendingTick {
 
 export class EngineRunner {
   readonly latency: LatencyWindow;
+  /**
+   * Off while state is being rebuilt (a bootstrap, a replay of history from topics): the age of a
+   * historical tick is not the pipeline's latency and would poison the live percentiles.
+   */
+  recordLatency = true;
   private readonly engine: RunnerEngine;
   private readonly bus: Bus;
   private readonly topics: { exposures: string; alerts: string; rejected: string };
   private readonly interval: number;
   private readonly now: () => number;
-  private readonly tickClock: () => number;
-  private readonly timeScale: number;
   private pending = new Map<string, ExposureMsg>();
   /** Ticks whose exposures wait in `pending`; their latency is taken when that flush is acked. */
   private pendingTicks: PendingTick[] = [];
@@ -129,14 +126,15 @@ export class EngineRunner {
   constructor(private readonly opts: RunnerOptions) {
     this.engine = opts.engine;
     this.bus = opts.bus;
-    this.topics = opts.outputTopics ?? { exposures: TOPICS.exposures, alerts: TOPICS.alerts, rejected: TOPICS.rejected };
+    this.topics = opts.outputTopics ?? {
+      exposures: TOPICS.exposures,
+      alerts: TOPICS.alerts,
+      rejected: TOPICS.rejected,
+    };
     this.interval = opts.publishIntervalMs ?? 100;
     this.now = opts.now ?? Date.now;
-    this.tickClock = opts.tickClock ?? this.now;
-    this.timeScale = opts.timeScale ?? 1;
     this.latency = new LatencyWindow(opts.latencyWindow);
     if (!(this.interval >= 0)) throw new RangeError('publishIntervalMs must be >= 0');
-    if (!(this.timeScale > 0)) throw new RangeError('timeScale must be > 0');
     const decay = opts.decayIntervalMs ?? 0;
     if (!(decay >= 0)) throw new RangeError('decayIntervalMs must be >= 0');
   }
@@ -172,7 +170,8 @@ export class EngineRunner {
       if (!p.apply) {
         this.counters.accepted++;
         this.opts.observer?.input?.('spot', 'accepted');
-        if (p.spot) ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: r.timestamp });
+        if (p.spot)
+          ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: r.timestamp });
         continue;
       }
       let outcome: IngestOutcome;
@@ -187,14 +186,15 @@ export class EngineRunner {
           reason: `internal error while applying: ${err instanceof Error ? err.message : String(err)}`,
           source: originOf(r),
           raw: r.value,
-          ts: new Date(this.tickClock()).toISOString(),
+          ts: new Date(this.now()).toISOString(),
         });
         outcome = 'rejected';
       }
       if (outcome === 'accepted') this.counters.accepted++;
       else if (outcome === 'duplicate') this.counters.duplicates++;
       else this.counters.rejected++;
-      if (outcome === 'accepted' && p.spot) ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: r.timestamp });
+      if (outcome === 'accepted' && p.spot)
+        ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: r.timestamp });
     }
     const out = this.engine.drain();
     this.opts.metrics?.batchProcessed((performance.now() - t0) / 1000);
@@ -252,13 +252,15 @@ export class EngineRunner {
       for (const t of ticks) if (touched.has(t.underlying)) this.pendingTicks.push(t);
     }
     const events: Promise<void>[] = [];
-    if (out.alerts.length || out.rejected.length) events.push(this.enqueue(() => this.publishEvents(out.alerts, out.rejected)));
+    if (out.alerts.length || out.rejected.length)
+      events.push(this.enqueue(() => this.publishEvents(out.alerts, out.rejected)));
     const due = this.stopped || this.now() - this.lastFlushAt >= this.interval;
     if (this.pending.size > 0) {
       if (due) events.push(this.enqueue(() => this.flush()));
       else {
         this.armFlushTimer();
-        if (this.opts.holdForExposures) events.push(new Promise((resolve, reject) => this.flushWaiters.push({ resolve, reject })));
+        if (this.opts.holdForExposures)
+          events.push(new Promise((resolve, reject) => this.flushWaiters.push({ resolve, reject })));
       }
     }
     await Promise.all(events);
@@ -285,7 +287,12 @@ export class EngineRunner {
     const work: Promise<void>[] = [];
     if (alerts.length) work.push(this.bus.publish(this.topics.alerts, alerts.map(signalRecord)));
     if (rejected.length)
-      work.push(this.bus.publish(this.topics.rejected, rejected.map((r) => ({ key: null, value: JSON.stringify(r) }))));
+      work.push(
+        this.bus.publish(
+          this.topics.rejected,
+          rejected.map((r) => ({ key: null, value: JSON.stringify(r) })),
+        ),
+      );
     await Promise.all(work);
     this.counters.alertsPublished += alerts.length;
     this.counters.rejectedPublished += rejected.length;
@@ -321,14 +328,14 @@ export class EngineRunner {
       throw err;
     }
     const wall = this.now();
-    const tickNow = this.tickClock();
     const metrics = this.opts.metrics;
-    for (const t of ticks) {
-      const ms = Math.max(0, (tickNow - t.tickTsMs) / this.timeScale);
-      this.latency.record(ms);
-      metrics?.tickToPublish(t.tickTsMs, t.tickTsMs + ms);
-      if (t.busTsMs !== undefined) metrics?.busToPublish(t.busTsMs, wall);
-    }
+    if (this.recordLatency)
+      for (const t of ticks) {
+        // A tick stamped by a clock ahead of ours would show a negative latency: count it as zero.
+        this.latency.record(Math.max(0, wall - t.tickTsMs));
+        metrics?.tickToPublish(t.tickTsMs, wall);
+        if (t.busTsMs !== undefined) metrics?.busToPublish(t.busTsMs, wall);
+      }
     this.counters.exposuresPublished += exposures.length;
     this.opts.onPublished?.({ exposures, alerts: [], rejected: [] });
     for (const w of waiters) w.resolve();
@@ -338,7 +345,9 @@ export class EngineRunner {
 /** Contract: a dead letter names its origin as topic, partition and offset where known. */
 export function originOf(r: BusRecord): string {
   if (r.partition === undefined) return r.topic;
-  return r.offset === undefined ? `${r.topic} partition ${r.partition}` : `${r.topic} partition ${r.partition} offset ${r.offset}`;
+  return r.offset === undefined
+    ? `${r.topic} partition ${r.partition}`
+    : `${r.topic} partition ${r.partition} offset ${r.offset}`;
 }
 
 function signalRecord(a: Signal): OutRecord {

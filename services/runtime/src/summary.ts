@@ -42,7 +42,8 @@ export function compact(n: number | null | undefined): string {
     [1e6, 'M'],
     [1e3, 'k'],
   ];
-  for (const [size, suffix] of units) if (a >= size) return `${(n / size).toFixed(a / size >= 100 ? 0 : a / size >= 10 ? 1 : 2)}${suffix}`;
+  for (const [size, suffix] of units)
+    if (a >= size) return `${(n / size).toFixed(a / size >= 100 ? 0 : a / size >= 10 ? 1 : 2)}${suffix}`;
   return a >= 100 ? n.toFixed(0) : a >= 10 ? n.toFixed(1) : n.toFixed(2);
 }
 
@@ -64,8 +65,10 @@ function clock(msEpoch: number): string {
 
 export function renderSummary(s: SummarySample): string {
   const lines: string[] = [];
-  const speed = s.speed === 1 ? '' : ` (market clock x${s.speed})`;
-  lines.push(`keelson  ${s.ready ? 'READY' : 'starting'}  market ${clock(s.marketMs)}Z${speed}${s.url ? `  ${s.url}` : ''}`);
+  const speed = s.speed === 1 ? '' : ` (market moving x${s.speed})`;
+  lines.push(
+    `keelson  ${s.ready ? 'READY' : 'starting'}  market ${clock(s.marketMs)}Z${speed}${s.url ? `  ${s.url}` : ''}`,
+  );
   lines.push(
     `flow    ${compact(s.inputsPerSec)} inputs/s  ${compact(s.revaluationsPerSec)} revaluations/s  ` +
       `tick->publish p50 ${ms(s.p50Ms)} p99 ${ms(s.p99Ms)}`,
@@ -91,8 +94,11 @@ export function renderSummary(s: SummarySample): string {
   for (const a of [...s.recentAlerts].reverse()) {
     const t = a.ts.slice(11, 19);
     if (a.type === 'alert')
-      lines.push(`  ${t}  ${a.state.padEnd(9)} ${a.severity.padEnd(7)} ${a.limitId}  ${(a.utilization * 100).toFixed(1)}%`);
-    else lines.push(`  ${t}  feed ${a.state.padEnd(4)} ${a.underlying}  last tick ${a.lastTick.slice(11, 19)}`);
+      lines.push(
+        `  ${t}  ${a.state.padEnd(9)} ${a.severity.padEnd(7)} ${a.limitId}  ${(a.utilization * 100).toFixed(1)}%`,
+      );
+    else
+      lines.push(`  ${t}  feed ${a.state.padEnd(4)} ${a.underlying}  last tick ${a.lastTick.slice(11, 19)}`);
   }
   return lines.join('\n') + '\n';
 }

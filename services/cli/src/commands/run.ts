@@ -16,7 +16,7 @@ embedded options:
                            (default: KEELSON_HTTP_TOKEN; unset = open)
   --open-metrics           with a token, leave /metrics open for a scraper without credentials
   --seed N                 simulator seed (default 1)
-  --speed X                market clock speed against the wall clock (default 1)
+  --speed X                simulated market moves X times faster than real time (default 1)
   --underlyings N          simulated underlyings (simulator default when unset)
   --trades N               initial simulated book size (simulator default when unset)
   --duration SECONDS       stop by itself after this long
@@ -30,11 +30,19 @@ embedded options:
   -h, --help
 `;
 
-function positive(name: string, raw: string | undefined, fallback: number, { allowZero = false, integer = false } = {}): number {
+function positive(
+  name: string,
+  raw: string | undefined,
+  fallback: number,
+  { allowZero = false, integer = false } = {},
+): number {
   if (raw === undefined) return fallback;
   const n = Number(raw);
   const ok = Number.isFinite(n) && (allowZero ? n >= 0 : n > 0) && (!integer || Number.isInteger(n));
-  if (!ok) throw new UsageError(`--${name} must be ${integer ? 'an integer' : 'a number'} ${allowZero ? '>= 0' : '> 0'}, got '${raw}'`);
+  if (!ok)
+    throw new UsageError(
+      `--${name} must be ${integer ? 'an integer' : 'a number'} ${allowZero ? '>= 0' : '> 0'}, got '${raw}'`,
+    );
   return n;
 }
 
@@ -50,7 +58,9 @@ function brokersFrom(argv: string[]): string | undefined {
 }
 
 async function runKafka(argv: string[], io: CommandIo, brokers: string): Promise<number> {
-  const bus = (await import('@keelson/bus')) as { runOnKafka?: (opts: { argv: string[]; io: CommandIo; brokers: string }) => Promise<number> };
+  const bus = (await import('@keelson/bus')) as {
+    runOnKafka?: (opts: { argv: string[]; io: CommandIo; brokers: string }) => Promise<number>;
+  };
   if (typeof bus.runOnKafka !== 'function') {
     io.stderr.write(
       `keelson run: brokers given (${brokers}) but this build has no Kafka runner (@keelson/bus does not export runOnKafka).\n` +
@@ -102,9 +112,13 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
   try {
     const str = (k: string) => values[k] as string | undefined;
     const ccy = str('reporting-currency');
-    if (ccy !== undefined && !/^[A-Z]{3}$/.test(ccy)) throw new UsageError(`--reporting-currency must be three upper-case letters, got '${ccy}'`);
+    if (ccy !== undefined && !/^[A-Z]{3}$/.test(ccy))
+      throw new UsageError(`--reporting-currency must be three upper-case letters, got '${ccy}'`);
     const level = str('log-level') ?? 'info';
-    if (!['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent'].includes(level)) throw new UsageError(`--log-level must be one of fatal, error, warn, info, debug, trace, silent, got '${level}'`);
+    if (!['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent'].includes(level))
+      throw new UsageError(
+        `--log-level must be one of fatal, error, warn, info, debug, trace, silent, got '${level}'`,
+      );
     const port = positive('port', str('port'), 9400, { allowZero: true, integer: true });
     if (port > 65535) throw new UsageError(`--port must be <= 65535, got '${port}'`);
     cfg = {
@@ -114,12 +128,19 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
       guardMetrics: !values['open-metrics'],
       seed: positive('seed', str('seed'), 1, { allowZero: true, integer: true }),
       speed: positive('speed', str('speed'), 1),
-      underlyings: str('underlyings') === undefined ? undefined : positive('underlyings', str('underlyings'), 0, { integer: true }),
-      trades: str('trades') === undefined ? undefined : positive('trades', str('trades'), 0, { allowZero: true, integer: true }),
+      underlyings:
+        str('underlyings') === undefined
+          ? undefined
+          : positive('underlyings', str('underlyings'), 0, { integer: true }),
+      trades:
+        str('trades') === undefined
+          ? undefined
+          : positive('trades', str('trades'), 0, { allowZero: true, integer: true }),
       durationMs: str('duration') === undefined ? undefined : positive('duration', str('duration'), 0) * 1000,
       decayIntervalMs: positive('decay-interval', str('decay-interval'), 60, { allowZero: true }) * 1000,
       publishIntervalMs: positive('publish-interval', str('publish-interval'), 100, { allowZero: true }),
-      staleAfterMs: str('stale-after') === undefined ? undefined : positive('stale-after', str('stale-after'), 5) * 1000,
+      staleAfterMs:
+        str('stale-after') === undefined ? undefined : positive('stale-after', str('stale-after'), 5) * 1000,
       reportingCurrency: ccy,
       level,
       quiet: Boolean(values.quiet),
@@ -154,7 +175,8 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
     });
   } catch (err) {
     const e = err as NodeJS.ErrnoException;
-    const why = e.code === 'EADDRINUSE' ? `${cfg.host}:${cfg.port} is already in use (try --port 0)` : e.message;
+    const why =
+      e.code === 'EADDRINUSE' ? `${cfg.host}:${cfg.port} is already in use (try --port 0)` : e.message;
     logger.error({ err }, 'start failed');
     io.stderr.write(`keelson run: could not start: ${why}\n`);
     return 1;
