@@ -1,3 +1,4 @@
+/* global process, setTimeout, clearTimeout */
 // Readiness probe for `start`: the broker counts as up when kafkajs (the client Keelson uses) can
 // fetch cluster metadata from it, which proves both the listener and the protocol versions.
 // usage: node probe.mjs 127.0.0.1:9092 [client.env]   exit 0 ready, 1 not yet, 2 cannot probe
@@ -19,7 +20,11 @@ if (credFile) {
       .filter((l) => l.includes('='))
       .map((l) => [l.slice(0, l.indexOf('=')), l.slice(l.indexOf('=') + 1)]),
   );
-  sasl = { mechanism: env.KAFKA_SASL_MECHANISM, username: env.KAFKA_SASL_USERNAME, password: env.KAFKA_SASL_PASSWORD };
+  sasl = {
+    mechanism: env.KAFKA_SASL_MECHANISM,
+    username: env.KAFKA_SASL_USERNAME,
+    password: env.KAFKA_SASL_PASSWORD,
+  };
 }
 const kafka = new kafkajs.Kafka({
   clientId: 'local-kafka-probe',

@@ -1,2 +1,5 @@
 export * from './bus.ts';
 export * from './memory.ts';
+export * from './kafka.ts';
+export * from './kafka-config.ts';
+export * from './kafka-topics.ts';

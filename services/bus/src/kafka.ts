@@ -1,0 +1,489 @@
+// The Kafka transport behind the Bus seam, over kafkajs.
+//
+// Delivery is at-least-once by construction: a batch's offsets are resolved and committed only
+// after the handler has resolved, and the runner's handler resolves only once every output that
+// depends on the batch has been acknowledged by the broker. A process that dies in between leaves
+// the batch uncommitted, so whoever owns the partition next reads it again.
+import kafkajs from 'kafkajs';
+import type {
+  Admin,
+  Consumer,
+  EachBatchPayload,
+  Kafka as KafkaClient,
+  KafkaMessage,
+  LogEntry,
+  Producer,
+  SASLOptions,
+} from 'kafkajs';
+import type { BatchHandler, Bus, BusRecord, OutRecord } from './bus.ts';
+import { describeKafkaConfig, KafkaConfigError, resolveConnection } from './kafka-config.ts';
+import type { KafkaConnection, KafkaSasl } from './kafka-config.ts';
+
+const { Kafka, Partitioners, logLevel, CompressionTypes } = kafkajs;
+
+/** The pino-shaped subset the transport logs through (pino's own logger fits). */
+export interface KafkaBusLogger {
+  debug(obj: object, msg: string): void;
+  info(obj: object, msg: string): void;
+  warn(obj: object, msg: string): void;
+  error(obj: object, msg: string): void;
+}
+
+export interface PartitionAssignment {
+  /** Logical topic name, prefix stripped. */
+  topic: string;
+  partitions: number[];
+}
+
+export type RebalanceEvent =
+  /** The group is rebalancing: partitions are about to be revoked; nothing is owned until assigned. */
+  | { kind: 'rebalancing'; groupId: string }
+  /** This member now owns exactly these partitions (possibly none). */
+  | { kind: 'assigned'; groupId: string; assignment: PartitionAssignment[] };
+
+export interface KafkaBusOptions {
+  /** `host:port,...` or a list; default KAFKA_BROKERS. */
+  brokers?: string | string[];
+  /** Default KAFKA_CLIENT_ID, then 'keelson'. */
+  clientId?: string;
+  /** Consumer group of subscribe(); default KAFKA_GROUP_ID, then 'keelson-engine'. */
+  groupId?: string;
+  /** Physical topic = prefix + logical name; default KAFKA_TOPIC_PREFIX, then 'keelson.'. */
+  topicPrefix?: string;
+  /** TLS; default from KAFKA_SSL* (see kafka-config.ts). */
+  ssl?: KafkaConnection['ssl'];
+  /** SASL; default from KAFKA_SASL_*. */
+  sasl?: KafkaSasl;
+  /** Environment to read defaults from (tests pass their own); default process.env. */
+  env?: NodeJS.ProcessEnv;
+  /** Where a group with no committed offset starts; default true (the book is rebuilt from the start). */
+  fromBeginning?: boolean;
+  /** 0 (default) commits after every batch; more batches commits, still only after handlers resolved. */
+  commitIntervalMs?: number;
+  sessionTimeoutMs?: number;
+  heartbeatIntervalMs?: number;
+  /** Longest a fetch waits for data when there is none: bounds idle latency. Default 50 ms. */
+  maxWaitTimeMs?: number;
+  maxBytesPerPartition?: number;
+  /** Partitions whose batches are handled concurrently; default 1 (one batch at a time, in order). */
+  partitionsConsumedConcurrently?: number;
+  /** In-flight produce requests per connection, 1..5 (the idempotent producer's bound); default 1. */
+  maxInFlightRequests?: number;
+  compression?: 'none' | 'gzip';
+  connectionTimeoutMs?: number;
+  requestTimeoutMs?: number;
+  logger?: KafkaBusLogger;
+  onRebalance?: (event: RebalanceEvent) => void;
+  onConnectionChange?: (connected: boolean) => void;
+}
+
+export interface SubscribeOptions {
+  /** Another group than the bus's default (e.g. a per-instance group that reads a topic whole). */
+  groupId?: string;
+  fromBeginning?: boolean;
+}
+
+type MemberState = 'connecting' | 'rebalancing' | 'joined' | 'crashed' | 'stopped';
+
+interface Member {
+  groupId: string;
+  consumer: Consumer;
+  topics: string[];
+  state: MemberState;
+  assignment: PartitionAssignment[];
+  lastFetchAt: number;
+  lastError?: string;
+}
+
+export interface KafkaBusStatus {
+  connected: boolean;
+  producer: { connected: boolean; lastError?: string };
+  consumers: {
+    groupId: string;
+    topics: string[];
+    state: MemberState;
+    assignment: PartitionAssignment[];
+    lastError?: string;
+  }[];
+}
+
+const DEFAULTS = {
+  clientId: 'keelson',
+  groupId: 'keelson-engine',
+  topicPrefix: 'keelson.',
+  sessionTimeoutMs: 10_000,
+  heartbeatIntervalMs: 1_000,
+  maxWaitTimeMs: 50,
+  maxBytesPerPartition: 4 * 1024 * 1024,
+};
+
+function positiveInt(
+  name: string,
+  v: number | undefined,
+  fallback: number,
+  min = 1,
+  max = Number.MAX_SAFE_INTEGER,
+): number {
+  if (v === undefined) return fallback;
+  if (!Number.isInteger(v) || v < min || v > max)
+    throw new KafkaConfigError(`${name} must be an integer in ${min}..${max}, got ${v}`);
+  return v;
+}
+
+function toLogLevel(level: number): 'debug' | 'info' | 'warn' | 'error' {
+  if (level === logLevel.ERROR) return 'error';
+  if (level === logLevel.WARN) return 'warn';
+  if (level === logLevel.INFO) return 'info';
+  return 'debug';
+}
+
+export class KafkaBus implements Bus {
+  readonly topicPrefix: string;
+  readonly groupId: string;
+  readonly connection: KafkaConnection;
+  private readonly kafka: KafkaClient;
+  private readonly opts: KafkaBusOptions;
+  private producer: Producer | undefined;
+  private producerReady: Promise<Producer> | undefined;
+  private producerConnected = false;
+  private producerError: string | undefined;
+  private readonly members: Member[] = [];
+  private lastConnected = false;
+  private closed = false;
+  private readonly fetchStaleAfterMs: number;
+  /** Staleness is a matter of time, not of an event: re-evaluated every second while consuming. */
+  private staleTimer: ReturnType<typeof setInterval> | undefined;
+
+  constructor(opts: KafkaBusOptions = {}) {
+    const env = opts.env ?? process.env;
+    this.opts = opts;
+    this.connection = resolveConnection(
+      { brokers: opts.brokers, clientId: opts.clientId, ssl: opts.ssl, sasl: opts.sasl },
+      env,
+    );
+    this.topicPrefix = opts.topicPrefix ?? env.KAFKA_TOPIC_PREFIX ?? DEFAULTS.topicPrefix;
+    if (!/^[A-Za-z0-9._-]*$/.test(this.topicPrefix)) {
+      throw new KafkaConfigError(
+        `topicPrefix may hold only letters, digits, '.', '_' and '-', got ${JSON.stringify(this.topicPrefix)}`,
+      );
+    }
+    this.groupId = opts.groupId ?? env.KAFKA_GROUP_ID ?? DEFAULTS.groupId;
+    positiveInt('maxInFlightRequests', opts.maxInFlightRequests, 1, 1, 5);
+    positiveInt('partitionsConsumedConcurrently', opts.partitionsConsumedConcurrently, 1, 1, 1024);
+    positiveInt('commitIntervalMs', opts.commitIntervalMs, 0, 0);
+    const heartbeat = positiveInt(
+      'heartbeatIntervalMs',
+      opts.heartbeatIntervalMs,
+      DEFAULTS.heartbeatIntervalMs,
+    );
+    const session = positiveInt('sessionTimeoutMs', opts.sessionTimeoutMs, DEFAULTS.sessionTimeoutMs);
+    if (heartbeat >= session)
+      throw new KafkaConfigError('heartbeatIntervalMs must be below sessionTimeoutMs');
+    const maxWait = positiveInt('maxWaitTimeMs', opts.maxWaitTimeMs, DEFAULTS.maxWaitTimeMs, 0, 60_000);
+    // A member that fetched nothing for this long has lost the broker, even before kafkajs says so.
+    this.fetchStaleAfterMs = Math.max(5_000, maxWait * 4, session);
+
+    const logger = opts.logger;
+    this.kafka = new Kafka({
+      clientId: this.connection.clientId,
+      brokers: this.connection.brokers,
+      ssl: this.connection.ssl,
+      ...(this.connection.sasl ? { sasl: this.connection.sasl as SASLOptions } : {}),
+      connectionTimeout: opts.connectionTimeoutMs ?? 3_000,
+      requestTimeout: opts.requestTimeoutMs ?? 30_000,
+      logLevel: logger ? logLevel.INFO : logLevel.NOTHING,
+      logCreator:
+        () =>
+        ({ level, log }: LogEntry) => {
+          if (!logger) return;
+          // kafkajs log entries carry broker addresses, group ids and error text, never credentials.
+          const { message, timestamp: _t, logger: _l, ...rest } = log;
+          logger[toLogLevel(level)]({ component: 'kafkajs', ...rest }, message);
+        },
+    });
+    logger?.info(
+      { kafka: describeKafkaConfig(this.connection), topicPrefix: this.topicPrefix, groupId: this.groupId },
+      'kafka bus configured',
+    );
+  }
+
+  /** The physical topic of a logical name. */
+  physical(topic: string): string {
+    return this.topicPrefix + topic;
+  }
+
+  /** The logical name of a physical topic (the prefix stripped). */
+  logical(topic: string): string {
+    return topic.startsWith(this.topicPrefix) ? topic.slice(this.topicPrefix.length) : topic;
+  }
+
+  /** An admin client on the same connection settings; the caller connects and disconnects it. */
+  admin(): Admin {
+    return this.kafka.admin();
+  }
+
+  async publish(topic: string, records: OutRecord[]): Promise<void> {
+    if (records.length === 0) return;
+    const producer = await this.connectProducer();
+    try {
+      await producer.send({
+        topic: this.physical(topic),
+        acks: -1,
+        compression: this.opts.compression === 'gzip' ? CompressionTypes.GZIP : CompressionTypes.None,
+        messages: records.map((r) => ({ key: r.key, value: r.value })),
+      });
+      if (this.producerError !== undefined) {
+        this.producerError = undefined;
+        this.updateConnected();
+      }
+    } catch (e) {
+      this.producerError = (e as Error).message;
+      this.updateConnected();
+      throw e;
+    }
+  }
+
+  /**
+   * Starts a consumer of `topics` (logical names) in the bus's group (or opts.groupId) and resolves
+   * once it is running. One batch is one partition's fetched records, in offset order.
+   */
+  async subscribe(topics: string[], handler: BatchHandler, opts: SubscribeOptions = {}): Promise<void> {
+    if (this.closed) throw new Error('kafka bus is closed');
+    if (topics.length === 0) throw new KafkaConfigError('subscribe needs at least one topic');
+    const groupId = opts.groupId ?? this.groupId;
+    if (this.members.some((m) => m.groupId === groupId && m.state !== 'stopped')) {
+      throw new KafkaConfigError(`this bus already has a consumer in group ${groupId}; pass another groupId`);
+    }
+    const consumer = this.kafka.consumer({
+      groupId,
+      sessionTimeout: positiveInt('sessionTimeoutMs', this.opts.sessionTimeoutMs, DEFAULTS.sessionTimeoutMs),
+      heartbeatInterval: positiveInt(
+        'heartbeatIntervalMs',
+        this.opts.heartbeatIntervalMs,
+        DEFAULTS.heartbeatIntervalMs,
+      ),
+      maxWaitTimeInMs: this.opts.maxWaitTimeMs ?? DEFAULTS.maxWaitTimeMs,
+      maxBytesPerPartition: this.opts.maxBytesPerPartition ?? DEFAULTS.maxBytesPerPartition,
+      allowAutoTopicCreation: false,
+    });
+    const member: Member = {
+      groupId,
+      consumer,
+      topics: [...topics],
+      state: 'connecting',
+      assignment: [],
+      lastFetchAt: 0,
+    };
+    this.members.push(member);
+    this.watch(member);
+    this.staleTimer ??= setInterval(() => this.updateConnected(), 1_000);
+    this.staleTimer.unref();
+
+    await consumer.connect();
+    await consumer.subscribe({
+      topics: topics.map((t) => this.physical(t)),
+      fromBeginning: opts.fromBeginning ?? this.opts.fromBeginning ?? true,
+    });
+    await consumer.run({
+      autoCommit: true,
+      autoCommitInterval: this.opts.commitIntervalMs ?? 0,
+      autoCommitThreshold: null,
+      eachBatchAutoResolve: false,
+      partitionsConsumedConcurrently: this.opts.partitionsConsumedConcurrently ?? 1,
+      eachBatch: (payload) => this.handleBatch(payload, handler),
+    });
+  }
+
+  private async handleBatch(p: EachBatchPayload, handler: BatchHandler): Promise<void> {
+    const { batch } = p;
+    const last = batch.messages[batch.messages.length - 1];
+    if (!last || !p.isRunning() || p.isStale()) return;
+    const topic = this.logical(batch.topic);
+    const records = batch.messages.map((m) => this.toRecord(topic, batch.partition, m));
+    // A slow handler (a publish waiting for a broker that came back) must not cost the partition:
+    // keep the membership alive while it works. kafkajs throttles heartbeats to its interval.
+    const beat = setInterval(
+      () => void p.heartbeat().catch(() => undefined),
+      Math.max(100, Math.floor((this.opts.heartbeatIntervalMs ?? DEFAULTS.heartbeatIntervalMs) / 2)),
+    );
+    try {
+      await handler(records);
+    } finally {
+      clearInterval(beat);
+    }
+    p.resolveOffset(last.offset);
+    await p.commitOffsetsIfNecessary();
+  }
+
+  private toRecord(topic: string, partition: number, m: KafkaMessage): BusRecord {
+    return {
+      topic,
+      partition,
+      offset: m.offset,
+      key: m.key ? m.key.toString('utf8') : null,
+      // A tombstone has no value; the empty string reaches the validator and is rejected with a
+      // reason there, rather than vanishing here.
+      value: m.value ? m.value.toString('utf8') : '',
+      timestamp: Number(m.timestamp),
+    };
+  }
+
+  private watch(member: Member): void {
+    const { consumer } = member;
+    const ev = consumer.events;
+    consumer.on(ev.CONNECT, () => this.updateConnected());
+    consumer.on(ev.FETCH, () => {
+      member.lastFetchAt = Date.now();
+      if (member.lastError !== undefined && member.state === 'joined') member.lastError = undefined;
+      this.updateConnected();
+    });
+    consumer.on(ev.REBALANCING, () => {
+      member.state = 'rebalancing';
+      member.assignment = [];
+      this.updateConnected();
+      this.opts.onRebalance?.({ kind: 'rebalancing', groupId: member.groupId });
+    });
+    consumer.on(ev.GROUP_JOIN, (e) => {
+      member.state = 'joined';
+      member.lastFetchAt = Date.now();
+      member.assignment = Object.entries(e.payload.memberAssignment)
+        .map(([t, partitions]) => ({
+          topic: this.logical(t),
+          partitions: [...partitions].sort((a, b) => a - b),
+        }))
+        .sort((a, b) => (a.topic < b.topic ? -1 : a.topic > b.topic ? 1 : 0));
+      this.updateConnected();
+      this.opts.onRebalance?.({ kind: 'assigned', groupId: member.groupId, assignment: member.assignment });
+    });
+    consumer.on(ev.CRASH, (e) => {
+      member.state = e.payload.restart ? 'connecting' : 'crashed';
+      member.assignment = [];
+      member.lastError = e.payload.error.message;
+      this.opts.logger?.warn(
+        { groupId: member.groupId, restart: e.payload.restart, err: e.payload.error.message },
+        'kafka consumer crashed',
+      );
+      this.updateConnected();
+    });
+    consumer.on(ev.STOP, () => {
+      member.state = 'stopped';
+      this.updateConnected();
+    });
+  }
+
+  private connectProducer(): Promise<Producer> {
+    if (this.closed) return Promise.reject(new Error('kafka bus is closed'));
+    if (!this.producerReady) {
+      const producer = this.kafka.producer({
+        // The Java client's murmur2 partitioner, named explicitly: a key lands on the same
+        // partition whichever client (ours, or an upstream in another language) produced it.
+        createPartitioner: Partitioners.DefaultPartitioner,
+        idempotent: true,
+        maxInFlightRequests: positiveInt('maxInFlightRequests', this.opts.maxInFlightRequests, 1, 1, 5),
+        allowAutoTopicCreation: false,
+      });
+      producer.on(producer.events.CONNECT, () => {
+        this.producerConnected = true;
+        this.updateConnected();
+      });
+      producer.on(producer.events.DISCONNECT, () => {
+        this.producerConnected = false;
+        this.updateConnected();
+      });
+      this.producer = producer;
+      this.producerReady = producer.connect().then(
+        () => producer,
+        (e: unknown) => {
+          this.producerReady = undefined;
+          this.producerError = (e as Error).message;
+          throw e;
+        },
+      );
+    }
+    return this.producerReady;
+  }
+
+  /** Connects the producer now rather than on the first publish (so /readyz can tell early). */
+  async connect(): Promise<void> {
+    await this.connectProducer();
+  }
+
+  /** Pauses fetching of the given logical topics (all subscribed ones by default). */
+  pause(topics?: string[]): void {
+    for (const m of this.members) {
+      const ts = (topics ?? m.topics).filter((t) => m.topics.includes(t));
+      if (ts.length && m.state !== 'stopped') m.consumer.pause(ts.map((t) => ({ topic: this.physical(t) })));
+    }
+  }
+
+  resume(topics?: string[]): void {
+    for (const m of this.members) {
+      const ts = (topics ?? m.topics).filter((t) => m.topics.includes(t));
+      if (ts.length && m.state !== 'stopped') m.consumer.resume(ts.map((t) => ({ topic: this.physical(t) })));
+    }
+  }
+
+  /** Partitions currently owned, per group. */
+  assignments(): { groupId: string; assignment: PartitionAssignment[] }[] {
+    return this.members
+      .filter((m) => m.state !== 'stopped')
+      .map((m) => ({ groupId: m.groupId, assignment: m.assignment }));
+  }
+
+  /**
+   * Connected: the producer is connected with no failed publish outstanding, and every consumer is
+   * in its group and fetched recently. What /readyz reports.
+   */
+  get connected(): boolean {
+    const now = Date.now();
+    const producerOk =
+      this.producer === undefined
+        ? this.members.length > 0
+        : this.producerConnected && this.producerError === undefined;
+    const consumersOk = this.members.every(
+      (m) => m.state === 'stopped' || (m.state === 'joined' && now - m.lastFetchAt <= this.fetchStaleAfterMs),
+    );
+    return !this.closed && producerOk && consumersOk;
+  }
+
+  status(): KafkaBusStatus {
+    return {
+      connected: this.connected,
+      producer: {
+        connected: this.producerConnected,
+        ...(this.producerError !== undefined ? { lastError: this.producerError } : {}),
+      },
+      consumers: this.members.map((m) => ({
+        groupId: m.groupId,
+        topics: m.topics,
+        state: m.state,
+        assignment: m.assignment,
+        ...(m.lastError !== undefined ? { lastError: m.lastError } : {}),
+      })),
+    };
+  }
+
+  private updateConnected(): void {
+    const now = this.connected;
+    if (now !== this.lastConnected) {
+      this.lastConnected = now;
+      this.opts.onConnectionChange?.(now);
+    }
+  }
+
+  /**
+   * Stops the consumers first (each finishes its current batch, whose publishes need the
+   * producer), then the producer. Idempotent.
+   */
+  async close(): Promise<void> {
+    if (this.closed) return;
+    this.closed = true;
+    clearInterval(this.staleTimer);
+    await Promise.allSettled(this.members.map((m) => m.consumer.disconnect()));
+    if (this.producerReady) {
+      await this.producerReady.then((p) => p.disconnect()).catch(() => undefined);
+    }
+    this.producerConnected = false;
+    this.updateConnected();
+  }
+}
