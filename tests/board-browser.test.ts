@@ -6,10 +6,23 @@
 import { copyFile, mkdir } from 'node:fs/promises';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Page } from 'playwright-core';
-import { alertSchema, exposureSchema, staleFeedSchema, type AlertMsg, type ExposureMsg, type StaleFeedMsg } from '@keelson/shared-types';
+import {
+  alertSchema,
+  exposureSchema,
+  staleFeedSchema,
+  type AlertMsg,
+  type ExposureMsg,
+  type StaleFeedMsg,
+} from '@keelson/shared-types';
 import { SseHub, type LimitView } from '@keelson/http';
 import { DemoBook } from '../services/board/demo/scenario.ts';
-import { chromiumAvailability, openBrowser, startBoardServer, type BoardServer, type BrowserSession } from './support/browser.ts';
+import {
+  chromiumAvailability,
+  openBrowser,
+  startBoardServer,
+  type BoardServer,
+  type BrowserSession,
+} from './support/browser.ts';
 
 const { available } = chromiumAvailability();
 const ARTIFACTS = new URL('./artifacts/', import.meta.url);
@@ -59,7 +72,79 @@ describe.skipIf(!available)('desk view in chromium', () => {
       utilization: Math.abs(orcaVega()) / max,
       level: 'ok',
     };
-    hub.setSnapshot(() => ({ exposures: book.exposures().map(valid.exposure), alerts: [], limits: [vegaLimit] }));
+    // A few more limits at different distances from their bounds, and an episode that has already
+    // come and gone, so the panels show what a session looks like.
+    const node = (key: string): ExposureMsg => book.exposures().find((e) => e.nodeKey === key)!;
+    const around = (limitId: string, key: string, metric: 'vega' | 'pv' | 'delta', u: number): LimitView => {
+      const value = node(key)[metric] as number;
+      const bound = Math.abs(value) / u;
+      return {
+        limitId,
+        nodeKey: key,
+        metric,
+        max: bound,
+        min: -bound,
+        warnAt: 0.8,
+        hysteresis: 0.05,
+        value,
+        utilization: u,
+        level: u >= 1 ? 'breach' : u >= 0.8 ? 'warning' : 'ok',
+      };
+    };
+    const others = [
+      around('L-HERON-VEGA', 'desk=HERON', 'vega', 0.86),
+      around('L-KESTREL-1-PV', 'desk=KESTREL/book=KESTREL-1', 'pv', 0.55),
+      around('L-PELICAN-DELTA', 'underlying=PELICAN', 'delta', 0.31),
+    ];
+    const heronWarn = valid.alert({
+      type: 'alert',
+      alertId: 'L-HERON-VEGA#1',
+      limitId: 'L-HERON-VEGA',
+      nodeKey: 'desk=HERON',
+      metric: 'vega',
+      value: others[0]!.value,
+      bound: others[0]!.max!,
+      utilization: 0.86,
+      severity: 'warning',
+      previous: 'ok',
+      state: 'raised',
+      ts: '2026-03-02T14:29:40.250Z',
+    });
+    const pelicanEpisode = [
+      valid.alert({
+        type: 'alert',
+        alertId: 'L-PELICAN-DELTA#1',
+        limitId: 'L-PELICAN-DELTA',
+        nodeKey: 'underlying=PELICAN',
+        metric: 'delta',
+        value: 1,
+        bound: 1,
+        utilization: 0.82,
+        severity: 'warning',
+        previous: 'ok',
+        state: 'raised',
+        ts: '2026-03-02T14:21:05.500Z',
+      }),
+      valid.alert({
+        type: 'alert',
+        alertId: 'L-PELICAN-DELTA#1',
+        limitId: 'L-PELICAN-DELTA',
+        nodeKey: 'underlying=PELICAN',
+        metric: 'delta',
+        value: 1,
+        bound: 1,
+        utilization: 0.7,
+        severity: 'ok',
+        previous: 'warning',
+        state: 'cleared',
+        ts: '2026-03-02T14:24:47.000Z',
+      }),
+    ];
+    hub.setSnapshot(() => ({
+      exposures: book.exposures().map(valid.exposure),
+      alerts: [...pelicanEpisode, heronWarn],
+      limits: [vegaLimit, ...others],
+    }));
     server = await startBoardServer(hub);
     browser = await openBrowser();
     page = await browser.context.newPage();
@@ -105,7 +190,11 @@ describe.skipIf(!available)('desk view in chromium', () => {
     const after = (await cell(pelican, 'pv').textContent()) ?? '';
     expect(after).not.toBe(before);
     expect(Math.abs(readFigure(after) - leaf!.pv)).toBeLessThanOrEqual(Math.abs(leaf!.pv) * 0.005 + 0.01);
-    const flash = await page.locator(`.grid-body .row[data-key="${pelican}"] .cell.up, .grid-body .row[data-key="${pelican}"] .cell.dn`).count();
+    const flash = await page
+      .locator(
+        `.grid-body .row[data-key="${pelican}"] .cell.up, .grid-body .row[data-key="${pelican}"] .cell.dn`,
+      )
+      .count();
     expect(flash).toBeGreaterThan(0);
   });
 
@@ -135,20 +224,35 @@ describe.skipIf(!available)('desk view in chromium', () => {
     await item.waitFor();
     expect(await item.locator('.sig-limit').textContent()).toBe('L-ORCA-VEGA');
     expect(await item.locator('.sig-state').textContent()).toBe('raised');
-    await expect.poll(() => page.locator('.limit[data-limit="L-ORCA-VEGA"]').getAttribute('data-level')).toBe('breach');
+    await expect
+      .poll(() => page.locator('.limit[data-limit="L-ORCA-VEGA"]').getAttribute('data-level'))
+      .toBe('breach');
     expect(await page.locator('.limit[data-limit="L-ORCA-VEGA"] .lvl').textContent()).toContain('breach');
     expect(await page.locator('#announce').textContent()).toContain('L-ORCA-VEGA');
     await expect.poll(() => page.locator('#breach-count').textContent()).toBe('1');
+    // Highest first: the breached limit heads the list, above the one in warning.
+    const order = await page
+      .locator('.limit:not([hidden])')
+      .evaluateAll((els) => els.map((e) => (e as HTMLElement).dataset.limit));
+    expect(order.slice(0, 2)).toEqual(['L-ORCA-VEGA', 'L-HERON-VEGA']);
   });
 
   it('marks a stale feed in the alert panel, the header and the rows that hold it', async () => {
     book.setStale('PELICAN', true);
     publishAll();
     hub.publishAlert(
-      valid.stale({ type: 'stale-feed', underlying: 'PELICAN', state: 'raised', lastTick: '2026-03-02T14:30:00.000Z', ts: book.asOf() }),
+      valid.stale({
+        type: 'stale-feed',
+        underlying: 'PELICAN',
+        state: 'raised',
+        lastTick: '2026-03-02T14:30:00.000Z',
+        ts: book.asOf(),
+      }),
     );
     await page.locator('.sig-feed[data-underlying="PELICAN"]').waitFor();
-    expect(await page.locator('.sig-feed[data-underlying="PELICAN"] .sig-state').textContent()).toBe('feed quiet');
+    expect(await page.locator('.sig-feed[data-underlying="PELICAN"] .sig-state').textContent()).toBe(
+      'feed quiet',
+    );
     await expect.poll(() => page.locator('#quiet-count').textContent()).toBe('1');
     await expect.poll(() => cell(pelican, 'status').textContent()).toContain('stale');
   });
@@ -164,10 +268,16 @@ describe.skipIf(!available)('desk view in chromium', () => {
     };
     await expect.poll(activeKey).toBe('desk=HERON');
     await page.keyboard.press('Enter');
-    await expect.poll(() => page.locator('.row[data-key="desk=HERON"]').getAttribute('aria-expanded')).toBe('false');
-    expect(await page.locator('.grid-body .row[data-key="desk=HERON/book=HERON-1"]:not([hidden])').count()).toBe(0);
+    await expect
+      .poll(() => page.locator('.row[data-key="desk=HERON"]').getAttribute('aria-expanded'))
+      .toBe('false');
+    expect(
+      await page.locator('.grid-body .row[data-key="desk=HERON/book=HERON-1"]:not([hidden])').count(),
+    ).toBe(0);
     await page.keyboard.press('ArrowRight');
-    await expect.poll(() => page.locator('.row[data-key="desk=HERON"]').getAttribute('aria-expanded')).toBe('true');
+    await expect
+      .poll(() => page.locator('.row[data-key="desk=HERON"]').getAttribute('aria-expanded'))
+      .toBe('true');
     await page.keyboard.press('Home');
     await expect.poll(activeKey).toBe('firm');
   });
@@ -225,16 +335,23 @@ describe.skipIf(!available)('desk view on the real embedded engine', () => {
     await page.goto(runtime.url);
     await page.waitForSelector('body[data-ready="true"]');
     await expect.poll(() => page.locator('#conn').getAttribute('data-state')).toBe('live');
-    await expect.poll(() => page.locator('.grid-body .row[data-key="firm"] .c-pv').textContent(), { timeout: 20_000 }).toMatch(/\d/);
+    await expect
+      .poll(() => page.locator('.grid-body .row[data-key="firm"] .c-pv').textContent(), { timeout: 20_000 })
+      .toMatch(/\d/);
     const desks = runtime.engine.snapshot().filter((e) => /^desk=[^/]+$/.test(e.nodeKey));
     expect(desks.length).toBeGreaterThan(0);
-    for (const d of desks) expect(await page.locator(`.grid-body .row[data-key="${d.nodeKey}"]`).count()).toBe(1);
+    for (const d of desks)
+      expect(await page.locator(`.grid-body .row[data-key="${d.nodeKey}"]`).count()).toBe(1);
     // The engine's firm P&L as the page prints it matches the engine's own snapshot to display precision.
     const first = (await page.locator('.grid-body .row[data-key="firm"] .c-pv').textContent()) ?? '';
-    await expect.poll(() => page.locator('.grid-body .row[data-key="firm"] .c-pv').textContent(), { timeout: 20_000 }).not.toBe(first);
+    await expect
+      .poll(() => page.locator('.grid-body .row[data-key="firm"] .c-pv').textContent(), { timeout: 20_000 })
+      .not.toBe(first);
     await page.waitForTimeout(300);
     const firm = runtime.engine.snapshot().find((e) => e.nodeKey === 'firm')!;
-    const shown = readFigure((await page.locator('.grid-body .row[data-key="firm"] .c-pv').textContent()) ?? '');
+    const shown = readFigure(
+      (await page.locator('.grid-body .row[data-key="firm"] .c-pv').textContent()) ?? '',
+    );
     // The engine moves on between the two reads; the board lags it by at most a flush and a frame.
     expect(Math.abs(shown - firm.pv)).toBeLessThan(Math.abs(firm.pv) * 0.05 + 1);
     await mkdir(ARTIFACTS, { recursive: true });

@@ -40,7 +40,9 @@ export interface BrowserSession {
   close(): Promise<void>;
 }
 
-export async function openBrowser(opts: { colorScheme?: 'light' | 'dark'; viewport?: { width: number; height: number } } = {}): Promise<BrowserSession> {
+export async function openBrowser(
+  opts: { colorScheme?: 'light' | 'dark'; viewport?: { width: number; height: number } } = {},
+): Promise<BrowserSession> {
   const profile = await mkdtemp(join(tmpdir(), 'keelson-chromium-'));
   // launchPersistentContext is playwright's way to give chromium its own --user-data-dir.
   const context = await chromium.launchPersistentContext(profile, {

@@ -56,7 +56,9 @@ function quantile(sorted: number[], q: number): number {
   return sorted[Math.min(sorted.length - 1, Math.floor(q * sorted.length))]!;
 }
 
-export async function runFrameBench(opts: { seconds?: number; underlyingsPerBook?: number } = {}): Promise<{ nodes: number; idle: FrameStats; loaded: FrameStats }> {
+export async function runFrameBench(
+  opts: { seconds?: number; underlyingsPerBook?: number } = {},
+): Promise<{ nodes: number; idle: FrameStats; loaded: FrameStats }> {
   const seconds = opts.seconds ?? 10;
   const names = Array.from({ length: 300 }, (_, i) => `U${String(i + 1).padStart(3, '0')}`);
   const book = new DemoBook({
@@ -89,8 +91,12 @@ export async function runFrameBench(opts: { seconds?: number; underlyingsPerBook
     const cdp = await browser.context.newCDPSession(page);
     await cdp.send('Performance.enable');
     const cdpMetrics = async (): Promise<Record<string, number>> => {
-      const { metrics } = (await cdp.send('Performance.getMetrics')) as { metrics: { name: string; value: number }[] };
-      return Object.fromEntries(metrics.filter((m) => CDP_METRICS.includes(m.name)).map((m) => [m.name, m.value]));
+      const { metrics } = (await cdp.send('Performance.getMetrics')) as {
+        metrics: { name: string; value: number }[];
+      };
+      return Object.fromEntries(
+        metrics.filter((m) => CDP_METRICS.includes(m.name)).map((m) => [m.name, m.value]),
+      );
     };
     const record = async (feed: boolean): Promise<FrameStats> => {
       const cdpBefore = await cdpMetrics();
@@ -122,7 +128,9 @@ export async function runFrameBench(opts: { seconds?: number; underlyingsPerBook
       });
       const after = await snap();
       const cdpAfter = await cdpMetrics();
-      const chromiumMs = Object.fromEntries(CDP_METRICS.map((k) => [k, (((cdpAfter[k] ?? 0) - (cdpBefore[k] ?? 0)) * 1000) / seconds]));
+      const chromiumMs = Object.fromEntries(
+        CDP_METRICS.map((k) => [k, (((cdpAfter[k] ?? 0) - (cdpBefore[k] ?? 0)) * 1000) / seconds]),
+      );
       const sorted = [...frames].sort((a, b) => a - b);
       return {
         frames: frames.length,
@@ -157,10 +165,19 @@ if (import.meta.url === `file://${process.argv[1]}` || process.argv[1]?.endsWith
   const f = (v: number): string => v.toFixed(1).padStart(8);
   const row = (name: string, s: FrameStats): string =>
     `${name.padEnd(8)}${String(s.frames).padStart(8)}${f(s.p50)}${f(s.p95)}${f(s.p99)}${f(s.max)}${String(s.longTasks).padStart(7)}${f(s.longTaskMs)}${String(Math.round(s.applied)).padStart(10)}${f(s.parse)}${f(s.apply)}${f(s.render)}`;
-  process.stdout.write(`desk view frame times, ${r.nodes} nodes, all changing at 10 Hz, ${seconds} s each, chromium headless\n`);
-  process.stdout.write(`${''.padEnd(8)}  frames  p50 ms  p95 ms  p99 ms  max ms  long  long ms  nodes/s  parse/s  apply/s render/s (ms)\n`);
+  process.stdout.write(
+    `desk view frame times, ${r.nodes} nodes, all changing at 10 Hz, ${seconds} s each, chromium headless\n`,
+  );
+  process.stdout.write(
+    `${''.padEnd(8)}  frames  p50 ms  p95 ms  p99 ms  max ms  long  long ms  nodes/s  parse/s  apply/s render/s (ms)\n`,
+  );
   process.stdout.write(`${row('idle', r.idle)}\n${row('loaded', r.loaded)}\n`);
-  const cdpRow = (name: string, s: FrameStats): string => `${name.padEnd(8)}${CDP_METRICS.map((k) => `${k.replace('Duration', '')} ${Math.round(s.chromium[k] ?? 0)}`).join('  ')}`;
-  process.stdout.write(`main thread, chromium's accounting (ms per s):\n${cdpRow('idle', r.idle)}\n${cdpRow('loaded', r.loaded)}\n`);
-  process.stdout.write(`p95 loaded / idle: ${(r.loaded.p95 / r.idle.p95).toFixed(2)}x; p95 loaded / 60 Hz budget (16.7 ms): ${(r.loaded.p95 / (1000 / 60)).toFixed(2)}x\n`);
+  const cdpRow = (name: string, s: FrameStats): string =>
+    `${name.padEnd(8)}${CDP_METRICS.map((k) => `${k.replace('Duration', '')} ${Math.round(s.chromium[k] ?? 0)}`).join('  ')}`;
+  process.stdout.write(
+    `main thread, chromium's accounting (ms per s):\n${cdpRow('idle', r.idle)}\n${cdpRow('loaded', r.loaded)}\n`,
+  );
+  process.stdout.write(
+    `p95 loaded / idle: ${(r.loaded.p95 / r.idle.p95).toFixed(2)}x; p95 loaded / 60 Hz budget (16.7 ms): ${(r.loaded.p95 / (1000 / 60)).toFixed(2)}x\n`,
+  );
 }

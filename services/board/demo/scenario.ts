@@ -60,7 +60,8 @@ export class DemoBook {
       for (let b = 1; b <= booksPerDesk; b++) {
         const book = `${desk}-${b}`;
         for (let i = 0; i < perBook; i++, u++) {
-          const underlying = names.length >= desks.length * booksPerDesk * perBook ? names[u]! : names[u % names.length]!;
+          const underlying =
+            names.length >= desks.length * booksPerDesk * perBook ? names[u]! : names[u % names.length]!;
           const spot = 40 + this.random() * 160;
           const delta = (this.random() - 0.45) * 40_000;
           const gamma = (this.random() - 0.5) * 900;

@@ -43,7 +43,8 @@ export function boardFileFor(pathname: string): string | undefined {
   }
   const clean = normalize(rel);
   // No way out of the static directory: no parent steps, no absolute paths, no hidden files.
-  if (clean.startsWith('..') || clean.includes(`${sep}..`) || clean.startsWith(sep) || clean.includes('\0')) return undefined;
+  if (clean.startsWith('..') || clean.includes(`${sep}..`) || clean.startsWith(sep) || clean.includes('\0'))
+    return undefined;
   if (clean.split(sep).some((part) => part.startsWith('.'))) return undefined;
   if (!(extname(clean) in TYPES)) return undefined;
   return clean;

@@ -22,7 +22,8 @@ function parseStream(body: string): { events: ParsedEvent[]; comments: string[];
   let id: string | undefined;
   for (const line of body.split('\n')) {
     if (line === '') {
-      if (data.length > 0) events.push({ event: event || 'message', data: data.join('\n'), ...(id ? { id } : {}) });
+      if (data.length > 0)
+        events.push({ event: event || 'message', data: data.join('\n'), ...(id ? { id } : {}) });
       data = [];
       event = '';
       continue;
@@ -251,7 +252,12 @@ describe('SseHub', () => {
     hub.publishAlert(alert(1, 'escalated', '2026-03-02T14:30:02.000Z'));
     hub.publishExposure(exposure('firm', 7));
     slow.drain(1); // room for exactly one write: the first alert, then full again
-    expect(slow.parsed().slice(1).map((e) => JSON.parse(e.data).state)).toEqual(['raised']);
+    expect(
+      slow
+        .parsed()
+        .slice(1)
+        .map((e) => JSON.parse(e.data).state),
+    ).toEqual(['raised']);
     hub.flushAll(); // still full: nothing
     expect(slow.chunks).toHaveLength(2);
     slow.drain();
@@ -296,7 +302,10 @@ describe('SseHub', () => {
     const second = connect(hub);
     expect(second.status).toBe(503);
     const post = new FakeResponse();
-    hub.handle({ method: 'POST', url: '/events', headers: {} } as unknown as IncomingMessage, post as unknown as ServerResponse);
+    hub.handle(
+      { method: 'POST', url: '/events', headers: {} } as unknown as IncomingMessage,
+      post as unknown as ServerResponse,
+    );
     expect(post.status).toBe(405);
     expect(hub.stats()).toMatchObject({ clients: 1, rejectedClients: 1 });
   });

@@ -226,7 +226,12 @@ export class SseHub {
       alerts.push(s);
     }
     alerts.sort((a, b) => (a.ts < b.ts ? -1 : a.ts > b.ts ? 1 : 0));
-    return JSON.stringify({ sentAt: this.now(), exposures: snap.exposures, alerts, limits: snap.limits ?? [] });
+    return JSON.stringify({
+      sentAt: this.now(),
+      exposures: snap.exposures,
+      alerts,
+      limits: snap.limits ?? [],
+    });
   }
 
   private remember(a: Signal): void {

@@ -1,3 +1,4 @@
+/* global window -- browser globals: this file runs in the page */
 import { startBoard } from './main.js';
 
 window.keelsonBoard = startBoard();

@@ -1,3 +1,4 @@
+/* global document, getComputedStyle, window -- browser globals: this file runs in the page */
 // A line of one node's metric over the session, drawn on a canvas (no chart library). The canvas
 // carries a text summary for screen readers; the readout under it repeats the latest figure.
 import { clockTime, compact, precise } from './format.js';
@@ -49,7 +50,13 @@ export class Chart {
       }
     }
     if (ys.length === 0) {
-      g.fillText(metric === 'delta' || metric === 'gamma' ? `${label}: not defined on this node (no single underlying)` : `${label}: no values yet for ${nodeKey}`, 12, h / 2);
+      g.fillText(
+        metric === 'delta' || metric === 'gamma'
+          ? `${label}: not defined on this node (no single underlying)`
+          : `${label}: no values yet for ${nodeKey}`,
+        12,
+        h / 2,
+      );
       this.canvas.setAttribute('aria-label', `Chart of ${label} for ${nodeKey}: no data yet`);
       this.readout.textContent = '';
       return;
@@ -124,7 +131,10 @@ export class Chart {
     const last = ys[ys.length - 1];
     const since = `since ${start}`;
     this.readout.textContent = `${label} of ${nodeKey}: ${precise(last)} \u00b7 low ${compact(low)} \u00b7 high ${compact(high)} \u00b7 ${since}`;
-    this.canvas.setAttribute('aria-label', `Chart of ${label} for ${nodeKey} from ${start} to ${end}: latest ${precise(last)}, lowest ${precise(low)}, highest ${precise(high)}`);
+    this.canvas.setAttribute(
+      'aria-label',
+      `Chart of ${label} for ${nodeKey} from ${start} to ${end}: latest ${precise(last)}, lowest ${precise(low)}, highest ${precise(high)}`,
+    );
   }
 
   schemeDark() {

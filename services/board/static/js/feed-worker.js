@@ -1,3 +1,4 @@
+/* global EventSource, performance, self -- browser globals: this file runs in the page */
 // Reads the event stream off the main thread. The heavy event is `nodes` (thousands of exposures
 // ten times a second): it is parsed here and handed over packed, numbers in one transferable
 // Float64Array, so the page's main thread spends its time drawing rather than parsing JSON.
@@ -39,7 +40,9 @@ self.onmessage = (ev) => {
   source = es;
   self.postMessage({ t: 'status', state: 'connecting' });
   es.addEventListener('open', () => self.postMessage({ t: 'status', state: 'live' }));
-  es.addEventListener('error', () => self.postMessage({ t: 'status', state: es.readyState === EventSource.CLOSED ? 'closed' : 'retrying' }));
+  es.addEventListener('error', () =>
+    self.postMessage({ t: 'status', state: es.readyState === EventSource.CLOSED ? 'closed' : 'retrying' }),
+  );
   for (const name of ['state', 'signal', 'bounds']) {
     es.addEventListener(name, (e) => {
       let data;

@@ -1,3 +1,4 @@
+/* global document -- browser globals: this file runs in the page */
 // Limit bars: each limit's utilization against its warning level and its bound, highest first.
 // The level is spelled out and drawn with its own icon and fill pattern, never by colour alone.
 import { compact, percent } from './format.js';
@@ -23,7 +24,11 @@ export class LimitsView {
     this.seen = -1;
     this.list = el('ol', 'limits');
     this.more = el('p', 'limits-more');
-    this.empty = el('p', 'empty-note', 'No limits known yet: they appear with the engine\u2019s limit list or the first alert.');
+    this.empty = el(
+      'p',
+      'empty-note',
+      'No limits known yet: they appear with the engine\u2019s limit list or the first alert.',
+    );
     host.append(this.empty, this.list, this.more);
     this.items = [];
   }
@@ -87,6 +92,9 @@ export class LimitsView {
         : `max ${v.max ?? 'none'}, min ${v.min ?? 'none'}, hysteresis ${percent(v.hysteresis)}`;
     });
     const hidden = ranked.length - shown.length;
-    this.more.textContent = hidden > 0 ? `${hidden} more limits, all at or below ${percent(Math.max(0, ranked[this.maxShown]?.utilization ?? 0))}` : '';
+    this.more.textContent =
+      hidden > 0
+        ? `${hidden} more limits, all at or below ${percent(Math.max(0, ranked[this.maxShown]?.utilization ?? 0))}`
+        : '';
   }
 }

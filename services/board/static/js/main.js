@@ -1,3 +1,4 @@
+/* global EventSource, Option, URL, URLSearchParams, Worker, document, location, performance, requestAnimationFrame -- browser globals: this file runs in the page */
 // Wires the stream to the views. Messages are applied to the model as they arrive; the screen is
 // redrawn once per animation frame, from whatever changed since the last one.
 import { clockTime, percent } from './format.js';
@@ -23,11 +24,20 @@ export function startBoard({ source } = {}) {
   const signals = new SignalsView($('signals-host'), $('announce'));
   const chart = new Chart($('chart'), $('chart-readout'));
   const metricSelect = $('chart-metric');
-  for (const c of COLUMNS.slice(1, 10)) metricSelect.append(new Option(c.title, c.id, c.id === 'pnl', c.id === 'pnl'));
+  for (const c of COLUMNS.slice(1, 10))
+    metricSelect.append(new Option(c.title, c.id, c.id === 'pnl', c.id === 'pnl'));
   $('only-breach').addEventListener('change', (ev) => signals.setOnlyBreach(ev.target.checked));
 
   // Main-thread time spent per stage, cumulative ms: read by the frame-time benchmark.
-  const counters = { nodesMsgs: 0, frames: 0, lastAsOf: '', quiet: new Map(), parseMs: 0, applyMs: 0, renderMs: 0 };
+  const counters = {
+    nodesMsgs: 0,
+    frames: 0,
+    lastAsOf: '',
+    quiet: new Map(),
+    parseMs: 0,
+    applyMs: 0,
+    renderMs: 0,
+  };
   let chartKey = 'firm';
   let everShown = false;
   let lastSlow = 0;
@@ -91,7 +101,13 @@ export function startBoard({ source } = {}) {
   const status = $('conn');
   (source ?? eventSource)(handlers, counters, (state) => {
     status.dataset.state = state;
-    status.textContent = { live: '\u25cf live', connecting: '\u25cc connecting\u2026', retrying: '\u25cc reconnecting\u2026', closed: '\u2715 disconnected' }[state] ?? state;
+    status.textContent =
+      {
+        live: '\u25cf live',
+        connecting: '\u25cc connecting\u2026',
+        retrying: '\u25cc reconnecting\u2026',
+        closed: '\u2715 disconnected',
+      }[state] ?? state;
   });
 
   function frame(now) {
@@ -120,7 +136,9 @@ export function startBoard({ source } = {}) {
       $('top-util').textContent = limits.views.size ? percent(top) : '\u2013';
       const quiet = [...counters.quiet.keys()].sort();
       $('quiet-count').textContent = String(quiet.length);
-      $('quiet-list').textContent = quiet.length ? quiet.slice(0, 8).join(', ') + (quiet.length > 8 ? ` +${quiet.length - 8}` : '') : 'none';
+      $('quiet-list').textContent = quiet.length
+        ? quiet.slice(0, 8).join(', ') + (quiet.length > 8 ? ` +${quiet.length - 8}` : '')
+        : 'none';
       document.body.classList.toggle('has-breach', breach > 0);
     }
     counters.renderMs += performance.now() - started;

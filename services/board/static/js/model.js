@@ -5,7 +5,17 @@
 
 export const DIMS = ['desk', 'book', 'underlying', 'tenor'];
 export const TENOR_ORDER = ['0-30d', '31-90d', '91-180d', '181-365d', '366d+'];
-export const METRIC_COLUMNS = ['pv', 'pnl', 'delta', 'cashDelta', 'gamma', 'cashGamma', 'vega', 'theta', 'rho'];
+export const METRIC_COLUMNS = [
+  'pv',
+  'pnl',
+  'delta',
+  'cashDelta',
+  'gamma',
+  'cashGamma',
+  'vega',
+  'theta',
+  'rho',
+];
 
 export function keyOf(dims) {
   const parts = [];
@@ -45,7 +55,8 @@ function compareSiblings(a, b) {
     if (a.kind !== b.kind) return a.kind === 'group' ? 1 : -1;
     return DIMS.indexOf(a.dim) - DIMS.indexOf(b.dim);
   }
-  if (a.dim === 'tenor' && b.dim === 'tenor') return TENOR_ORDER.indexOf(a.label) - TENOR_ORDER.indexOf(b.label);
+  if (a.dim === 'tenor' && b.dim === 'tenor')
+    return TENOR_ORDER.indexOf(a.label) - TENOR_ORDER.indexOf(b.label);
   return a.label < b.label ? -1 : a.label > b.label ? 1 : 0;
 }
 
@@ -63,7 +74,12 @@ export class NodeTree {
 
   #make(key, dims, parent, kind, dim, label) {
     const entry = {
-      key, dims, parent, kind, dim, label,
+      key,
+      dims,
+      parent,
+      kind,
+      dim,
+      label,
       depth: parent ? parent.depth + 1 : 0,
       children: [],
       expanded: false,
@@ -108,7 +124,12 @@ export class NodeTree {
 
   /** Applies one exposure; returns its entry. Records which metrics moved and which way. */
   apply(msg, at) {
-    const entry = this.byKey.get(msg.nodeKey) ?? this.ensure(msg.nodeKey, msg.node && Object.keys(msg.node).length ? { ...msg.node } : dimsOf(msg.nodeKey));
+    const entry =
+      this.byKey.get(msg.nodeKey) ??
+      this.ensure(
+        msg.nodeKey,
+        msg.node && Object.keys(msg.node).length ? { ...msg.node } : dimsOf(msg.nodeKey),
+      );
     if (entry.kind === 'placeholder') entry.kind = 'node';
     const prev = entry.msg;
     if (prev) {
@@ -135,7 +156,8 @@ export class NodeTree {
   }
 
   expandTo(depth) {
-    for (const e of this.byKey.values()) if (e.kind !== 'group' && e.depth < depth && e.children.length) e.expanded = true;
+    for (const e of this.byKey.values())
+      if (e.kind !== 'group' && e.depth < depth && e.children.length) e.expanded = true;
     this.shape++;
   }
 

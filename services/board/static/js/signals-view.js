@@ -1,3 +1,4 @@
+/* global document -- browser globals: this file runs in the page */
 // The alert log: limit transitions and feed silences, newest first. Breaches are also read out
 // at once through an assertive live region, so a screen-reader user hears them the moment they land.
 import { clockTime, compact, percent } from './format.js';
@@ -68,13 +69,21 @@ export class SignalsView {
     const icon = el('span', 'sig-icon', SEVERITY_ICON[a.severity] ?? '\u25cb');
     icon.setAttribute('aria-hidden', 'true');
     const head = el('div', 'sig-head');
-    head.append(icon, el('span', 'sig-state', a.state), el('span', 'sig-sev', a.severity === 'ok' ? 'back within' : a.severity));
+    head.append(
+      icon,
+      el('span', 'sig-state', a.state),
+      el('span', 'sig-sev', a.severity === 'ok' ? 'back within' : a.severity),
+    );
     const time = el('time', 'sig-time', clockTime(a.ts));
     time.dateTime = a.ts;
     head.append(time);
     const body = el('div', 'sig-body');
     body.append(el('span', 'sig-limit', a.limitId), el('span', 'sig-node', a.nodeKey));
-    const figures = el('div', 'sig-figures', `${a.metric} ${compact(a.value)} of ${compact(a.bound)} \u00b7 ${percent(a.utilization)} \u00b7 was ${a.previous}`);
+    const figures = el(
+      'div',
+      'sig-figures',
+      `${a.metric} ${compact(a.value)} of ${compact(a.bound)} \u00b7 ${percent(a.utilization)} \u00b7 was ${a.previous}`,
+    );
     li.append(head, body, figures);
     return li;
   }
@@ -89,7 +98,12 @@ export class SignalsView {
     const head = el('div', 'sig-head');
     const time = el('time', 'sig-time', clockTime(f.ts));
     time.dateTime = f.ts;
-    head.append(icon, el('span', 'sig-state', quiet ? 'feed quiet' : 'feed resumed'), el('span', 'sig-sev', f.underlying), time);
+    head.append(
+      icon,
+      el('span', 'sig-state', quiet ? 'feed quiet' : 'feed resumed'),
+      el('span', 'sig-sev', f.underlying),
+      time,
+    );
     const figures = el('div', 'sig-figures', `last tick ${clockTime(f.lastTick)}`);
     li.append(head, figures);
     return li;

@@ -1,3 +1,4 @@
+/* global document, localStorage -- browser globals: this file runs in the page */
 // Light, dark, or whatever the system prefers; the choice is remembered in this browser.
 const KEY = 'keelson.board.theme';
 const ORDER = ['auto', 'light', 'dark'];

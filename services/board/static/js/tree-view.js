@@ -1,3 +1,4 @@
+/* global document -- browser globals: this file runs in the page */
 // The node grid: an ARIA treegrid that draws only the rows in view (a pool of row elements rebound
 // as the user scrolls), and on each animation frame touches only the cells whose text changed.
 import { compact, precise, NONE } from './format.js';
@@ -46,7 +47,13 @@ export class TreeView {
     this.forceBind = true;
     this.seq = 0;
 
-    this.grid = el('div', 'grid', { role: 'treegrid', 'aria-label': 'Exposures by node', tabindex: '0', 'aria-colcount': String(COLUMNS.length), 'aria-multiselectable': 'false' });
+    this.grid = el('div', 'grid', {
+      role: 'treegrid',
+      'aria-label': 'Exposures by node',
+      tabindex: '0',
+      'aria-colcount': String(COLUMNS.length),
+      'aria-multiselectable': 'false',
+    });
     const head = el('div', 'grid-head', { role: 'rowgroup' });
     const headRow = el('div', 'row head', { role: 'row', 'aria-rowindex': '1' });
     for (const c of COLUMNS) {
@@ -62,9 +69,13 @@ export class TreeView {
     this.grid.append(head, this.body);
     host.append(this.grid);
 
-    this.body.addEventListener('scroll', () => {
-      this.scrolled = true;
-    }, { passive: true });
+    this.body.addEventListener(
+      'scroll',
+      () => {
+        this.scrolled = true;
+      },
+      { passive: true },
+    );
     this.body.addEventListener('click', (ev) => this.#onClick(ev));
     this.grid.addEventListener('keydown', (ev) => this.#onKey(ev));
   }
@@ -126,7 +137,8 @@ export class TreeView {
       }
       if (rebind || slot.entry !== entry) {
         // A fold changes the row's own aria-expanded and toggle even when it stays in place.
-        if (this.forceBind || slot.entry !== entry || slot.index !== first + i) this.#place(slot, entry, first + i);
+        if (this.forceBind || slot.entry !== entry || slot.index !== first + i)
+          this.#place(slot, entry, first + i);
         this.#values(slot, entry, now);
       } else if (this.dirty.has(entry.key)) {
         this.#values(slot, entry, now);
@@ -156,8 +168,9 @@ export class TreeView {
     row.dataset.key = entry.key;
     row.style.setProperty('--depth', String(entry.depth));
     slot.tog.textContent = parentish ? (entry.expanded ? '\u25be' : '\u25b8') : '';
-    slot.tag.textContent = entry.kind === 'group' ? '' : entry.depth === 0 ? '' : DIM_TAG[entry.dim] ?? '';
-    slot.label.textContent = entry.kind === 'group' ? `${entry.label} (${entry.children.length})` : entry.label;
+    slot.tag.textContent = entry.kind === 'group' ? '' : entry.depth === 0 ? '' : (DIM_TAG[entry.dim] ?? '');
+    slot.label.textContent =
+      entry.kind === 'group' ? `${entry.label} (${entry.children.length})` : entry.label;
     slot.cells[0].title = entry.kind === 'group' ? `${entry.parent.key}: nodes ${entry.label}` : entry.key;
     for (const c of slot.cells) {
       c.moveAt = 0;
@@ -291,12 +304,24 @@ export class TreeView {
     if (!entry) return;
     const page = Math.max(1, Math.floor(this.body.clientHeight / ROW_HEIGHT) - 1);
     switch (ev.key) {
-      case 'ArrowDown': this.setActive(i + 1); break;
-      case 'ArrowUp': this.setActive(i - 1); break;
-      case 'PageDown': this.setActive(i + page); break;
-      case 'PageUp': this.setActive(i - page); break;
-      case 'Home': this.setActive(0); break;
-      case 'End': this.setActive(rows.length - 1); break;
+      case 'ArrowDown':
+        this.setActive(i + 1);
+        break;
+      case 'ArrowUp':
+        this.setActive(i - 1);
+        break;
+      case 'PageDown':
+        this.setActive(i + page);
+        break;
+      case 'PageUp':
+        this.setActive(i - page);
+        break;
+      case 'Home':
+        this.setActive(0);
+        break;
+      case 'End':
+        this.setActive(rows.length - 1);
+        break;
       case 'ArrowRight':
         if (entry.children.length && !entry.expanded) this.#toggle(entry, true);
         else if (entry.children.length) this.setActive(i + 1);

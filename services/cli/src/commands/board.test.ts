@@ -19,7 +19,11 @@ class Sink {
   }
 }
 
-const rec = (topic: string, value: unknown): BusRecord => ({ topic, key: null, value: typeof value === 'string' ? value : JSON.stringify(value) });
+const rec = (topic: string, value: unknown): BusRecord => ({
+  topic,
+  key: null,
+  value: typeof value === 'string' ? value : JSON.stringify(value),
+});
 
 // The contract's own examples (contract-v1.md: the limit and alert messages).
 const limit = {
@@ -82,14 +86,26 @@ describe('BoardState', () => {
     const sink = new Sink();
     const s = new BoardState(sink);
     expect(s.apply(rec('limits', limit))).toEqual({ ok: true });
-    expect(sink.limits.at(-1)).toMatchObject({ limitId: 'L-VOL-NIMBUS-VEGA', value: 0, utilization: 0, level: 'ok', warnAt: 0.8, hysteresis: 0.05 });
+    expect(sink.limits.at(-1)).toMatchObject({
+      limitId: 'L-VOL-NIMBUS-VEGA',
+      value: 0,
+      utilization: 0,
+      level: 'ok',
+      warnAt: 0.8,
+      hysteresis: 0.05,
+    });
     expect(s.apply(rec('exposures', exposure(262000)))).toEqual({ ok: true });
     expect(sink.exposures).toHaveLength(1);
     expect(sink.limits.at(-1)!.utilization).toBeCloseTo(1.048, 12);
     expect(sink.limits.at(-1)!.level).toBe('ok'); // the level moves only with the engine's alert
     expect(s.apply(rec('alerts', alert))).toEqual({ ok: true });
     expect(sink.signals).toHaveLength(1);
-    expect(sink.limits.at(-1)).toMatchObject({ level: 'breach', max: 250000, min: -250000, nodeKey: 'desk=VOLATILITY/underlying=NIMBUS' });
+    expect(sink.limits.at(-1)).toMatchObject({
+      level: 'breach',
+      max: 250000,
+      min: -250000,
+      nodeKey: 'desk=VOLATILITY/underlying=NIMBUS',
+    });
     expect(s.openAlerts().map((a) => a.alertId)).toEqual(['L-VOL-NIMBUS-VEGA#3']);
     expect(s.exposures().map((e) => e.vega)).toEqual([262000]);
   });
@@ -98,9 +114,19 @@ describe('BoardState', () => {
     const sink = new Sink();
     const s = new BoardState(sink);
     s.apply(rec('limits', limit));
-    expect(s.apply(rec('limits', { type: 'limit-remove', limitId: 'L-VOL-NIMBUS-VEGA', ts: '2026-03-02T14:31:00Z' }))).toEqual({ ok: true });
+    expect(
+      s.apply(
+        rec('limits', { type: 'limit-remove', limitId: 'L-VOL-NIMBUS-VEGA', ts: '2026-03-02T14:31:00Z' }),
+      ),
+    ).toEqual({ ok: true });
     expect(s.limits()).toEqual([]);
-    const stale = { type: 'stale-feed', underlying: 'NIMBUS', state: 'raised', lastTick: '2026-03-02T14:30:00Z', ts: '2026-03-02T14:30:06Z' };
+    const stale = {
+      type: 'stale-feed',
+      underlying: 'NIMBUS',
+      state: 'raised',
+      lastTick: '2026-03-02T14:30:00Z',
+      ts: '2026-03-02T14:30:06Z',
+    };
     expect(s.apply(rec('alerts', stale))).toEqual({ ok: true });
     expect(s.recentSignals()).toEqual([stale]);
   });
@@ -109,7 +135,10 @@ describe('BoardState', () => {
     const sink = new Sink();
     const s = new BoardState(sink);
     s.apply(rec('exposures', exposure(1)));
-    expect(s.apply(rec('exposures', '{not json'))).toEqual({ ok: false, reason: 'exposures: record is not valid JSON' });
+    expect(s.apply(rec('exposures', '{not json'))).toEqual({
+      ok: false,
+      reason: 'exposures: record is not valid JSON',
+    });
     const bad = s.apply(rec('exposures', { ...exposure(2), vega: 'lots' }));
     expect(bad.ok).toBe(false);
     expect(!bad.ok && bad.reason).toContain('vega');
@@ -121,7 +150,10 @@ describe('BoardState', () => {
   it('keeps only the most recent signals for a newly connected page', () => {
     const s = new BoardState(new Sink(), 2);
     for (let i = 1; i <= 3; i++) s.apply(rec('alerts', { ...alert, alertId: `L-VOL-NIMBUS-VEGA#${i}` }));
-    expect(s.recentSignals().map((a) => (a.type === 'alert' ? a.alertId : ''))).toEqual(['L-VOL-NIMBUS-VEGA#2', 'L-VOL-NIMBUS-VEGA#3']);
+    expect(s.recentSignals().map((a) => (a.type === 'alert' ? a.alertId : ''))).toEqual([
+      'L-VOL-NIMBUS-VEGA#2',
+      'L-VOL-NIMBUS-VEGA#3',
+    ]);
   });
 });
 

@@ -89,7 +89,11 @@ export class BoardState {
 
   private onExposure(obj: unknown): ApplyOutcome {
     const r = exposureSchema.safeParse(obj);
-    if (!r.success) return { ok: false, reason: `exposure: ${r.error.issues[0]?.path.join('.')} ${r.error.issues[0]?.message}` };
+    if (!r.success)
+      return {
+        ok: false,
+        reason: `exposure: ${r.error.issues[0]?.path.join('.')} ${r.error.issues[0]?.message}`,
+      };
     const e = r.data as ExposureMsg;
     this.nodes.set(e.nodeKey, e);
     this.sink.publishExposure(e);
@@ -101,13 +105,21 @@ export class BoardState {
     const type = (obj as { type?: unknown } | null)?.type;
     if (type === 'stale-feed') {
       const r = staleFeedSchema.safeParse(obj);
-      if (!r.success) return { ok: false, reason: `stale-feed: ${r.error.issues[0]?.path.join('.')} ${r.error.issues[0]?.message}` };
+      if (!r.success)
+        return {
+          ok: false,
+          reason: `stale-feed: ${r.error.issues[0]?.path.join('.')} ${r.error.issues[0]?.message}`,
+        };
       this.remember(r.data);
       this.sink.publishAlert(r.data);
       return { ok: true };
     }
     const r = alertSchema.safeParse(obj);
-    if (!r.success) return { ok: false, reason: `alert: ${r.error.issues[0]?.path.join('.')} ${r.error.issues[0]?.message}` };
+    if (!r.success)
+      return {
+        ok: false,
+        reason: `alert: ${r.error.issues[0]?.path.join('.')} ${r.error.issues[0]?.message}`,
+      };
     const a = r.data as AlertMsg;
     this.lastAlert.set(a.limitId, a);
     this.remember(a);
@@ -174,7 +186,9 @@ export class BoardState {
   }
 
   exposures(): ExposureMsg[] {
-    return [...this.nodes.values()].sort((a, b) => (a.nodeKey < b.nodeKey ? -1 : a.nodeKey > b.nodeKey ? 1 : 0));
+    return [...this.nodes.values()].sort((a, b) =>
+      a.nodeKey < b.nodeKey ? -1 : a.nodeKey > b.nodeKey ? 1 : 0,
+    );
   }
 
   limits(): LimitView[] {
@@ -182,7 +196,9 @@ export class BoardState {
   }
 
   openAlerts(): AlertMsg[] {
-    return [...this.lastAlert.values()].filter((a) => a.severity !== 'ok').sort((a, b) => (a.limitId < b.limitId ? -1 : 1));
+    return [...this.lastAlert.values()]
+      .filter((a) => a.severity !== 'ok')
+      .sort((a, b) => (a.limitId < b.limitId ? -1 : 1));
   }
 
   recentSignals(): Signal[] {
@@ -208,11 +224,18 @@ function parse(argv: string[]) {
     strict: true,
     allowPositionals: false,
   });
-  const num = (name: string, raw: string | undefined, fallback: number, { zero = false, integer = false } = {}): number => {
+  const num = (
+    name: string,
+    raw: string | undefined,
+    fallback: number,
+    { zero = false, integer = false } = {},
+  ): number => {
     if (raw === undefined) return fallback;
     const n = Number(raw);
     if (!Number.isFinite(n) || (zero ? n < 0 : n <= 0) || (integer && !Number.isInteger(n))) {
-      throw new UsageError(`--${name} must be ${integer ? 'an integer' : 'a number'} ${zero ? '>= 0' : '> 0'}, got '${raw}'`);
+      throw new UsageError(
+        `--${name} must be ${integer ? 'an integer' : 'a number'} ${zero ? '>= 0' : '> 0'}, got '${raw}'`,
+      );
     }
     return n;
   };
@@ -243,18 +266,28 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
     return 0;
   }
   if (!opts.brokers) {
-    io.stderr.write(`keelson board: no brokers: pass --brokers host:port or set KAFKA_BROKERS\n(the embedded 'keelson run' serves the same page itself)\n`);
+    io.stderr.write(
+      `keelson board: no brokers: pass --brokers host:port or set KAFKA_BROKERS\n(the embedded 'keelson run' serves the same page itself)\n`,
+    );
     return 1;
   }
 
   const busMod = (await import('@keelson/bus')) as Record<string, unknown>;
-  const KafkaBus = busMod.KafkaBus as (new (o: Record<string, unknown>) => import('@keelson/bus').Bus & {
-    connected: boolean;
-    status(): unknown;
-    subscribe(topics: string[], h: (b: BusRecord[]) => Promise<void>, o?: { groupId?: string; fromBeginning?: boolean }): Promise<void>;
-  }) | undefined;
+  const KafkaBus = busMod.KafkaBus as
+    | (new (o: Record<string, unknown>) => import('@keelson/bus').Bus & {
+        connected: boolean;
+        status(): unknown;
+        subscribe(
+          topics: string[],
+          h: (b: BusRecord[]) => Promise<void>,
+          o?: { groupId?: string; fromBeginning?: boolean },
+        ): Promise<void>;
+      })
+    | undefined;
   if (typeof KafkaBus !== 'function') {
-    io.stderr.write('keelson board: this build has no Kafka transport (@keelson/bus does not export KafkaBus)\n');
+    io.stderr.write(
+      'keelson board: this build has no Kafka transport (@keelson/bus does not export KafkaBus)\n',
+    );
     return 1;
   }
   const [{ SseHub, startHttpServer }, { serveBoard }, { createLogger }, promClient] = await Promise.all([
@@ -291,7 +324,11 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
     },
   });
   let lastRecordAt = 0;
-  hub.setSnapshot(() => ({ exposures: state.exposures(), alerts: state.recentSignals(), limits: state.limits() }));
+  hub.setSnapshot(() => ({
+    exposures: state.exposures(),
+    alerts: state.recentSignals(),
+    limits: state.limits(),
+  }));
 
   const bus = new KafkaBus({
     brokers: opts.brokers,
@@ -310,7 +347,10 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
     exposures: () => state.exposures(),
     alerts: () => ({ open: state.openAlerts(), recent: state.recentSignals() }),
     readiness: () => ({
-      kafka: { ok: subscribed && bus.connected, detail: subscribed ? (bus.connected ? 'consuming' : 'not connected') : 'subscribing' },
+      kafka: {
+        ok: subscribed && bus.connected,
+        detail: subscribed ? (bus.connected ? 'consuming' : 'not connected') : 'subscribing',
+      },
     }),
     events: hub,
     board: serveBoard,
@@ -336,7 +376,10 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
           records.inc({ topic: rec.topic, outcome: r.ok ? 'applied' : 'invalid' });
           // Log the first few in full and then only every thousandth: a poisoned topic must not flood the log.
           if (!r.ok && (invalidLogged++ < 20 || invalidLogged % 1000 === 0)) {
-            log.warn({ topic: rec.topic, partition: rec.partition, offset: rec.offset, reason: r.reason }, 'record skipped');
+            log.warn(
+              { topic: rec.topic, partition: rec.partition, offset: rec.offset, reason: r.reason },
+              'record skipped',
+            );
           }
         }
         lastRecordAt = Date.now();
