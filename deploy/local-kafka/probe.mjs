@@ -1,4 +1,4 @@
-/* global process, setTimeout, clearTimeout */
+/* global setTimeout, clearTimeout */
 // Readiness probe for `start`: the broker counts as up when kafkajs (the client Keelson uses) can
 // fetch cluster metadata from it, which proves both the listener and the protocol versions.
 // usage: node probe.mjs 127.0.0.1:9092 [client.env]   exit 0 ready, 1 not yet, 2 cannot probe
