@@ -3,6 +3,7 @@ import { INPUT_TYPES, type InputType } from './constants.ts';
 import { INPUT_SCHEMAS, type InputMsg } from './inputs.ts';
 import { outputSchema, type OutputMsg } from './outputs.ts';
 import { formatIssues } from './reasons.ts';
+import { isContractTs } from './time.ts';
 
 export type DecodeResult = { ok: true; msg: InputMsg } | { ok: false; reason: string };
 
@@ -12,12 +13,43 @@ function isInputType(t: unknown): t is InputType {
   return typeof t === 'string' && (INPUT_TYPES as readonly string[]).includes(t);
 }
 
+const NAME = /^[^\s/=]{1,64}$/;
+
+/**
+ * Spots are most of the traffic: a valid one is recognised by hand, several times faster than
+ * the schema. Anything it does not accept goes through the schema, which alone words reasons,
+ * so the result is the same either way (a test holds the two to it).
+ */
+function fastSpot(o: Record<string, unknown>): DecodeResult | null {
+  const { underlying, price, ts } = o;
+  if (
+    typeof underlying === 'string' &&
+    NAME.test(underlying) &&
+    typeof price === 'number' &&
+    Number.isFinite(price) &&
+    price > 0 &&
+    typeof ts === 'string' &&
+    isContractTs(ts)
+  ) {
+    return { ok: true, msg: { type: 'spot', underlying, price, ts } };
+  }
+  return null;
+}
+
 /** Validate one already-parsed object against the contract. */
 export function validateInput(obj: unknown): DecodeResult {
   if (typeof obj !== 'object' || obj === null || Array.isArray(obj)) {
     return { ok: false, reason: 'message must be a JSON object' };
   }
   const type = (obj as { type?: unknown }).type;
+  if (type === 'spot') {
+    try {
+      const fast = fastSpot(obj as Record<string, unknown>);
+      if (fast !== null) return fast;
+    } catch {
+      // a throwing getter: let the schema path below report it
+    }
+  }
   if (!isInputType(type)) {
     return {
       ok: false,
