@@ -127,13 +127,16 @@ export class DemoBook {
     return new Date(this.nowMs).toISOString();
   }
 
-  /** Every node the engine would keep for this book: firm, desk, desk/book, desk/book/underlying, underlying. */
-  exposures(): ExposureMsg[] {
-    const groups = new Map<string, { node: ExposureMsg['node']; leaves: Leaf[] }>();
+  /** Node -> the leaves it sums; built once, the book's shape never changes. */
+  private groups: { key: string; node: ExposureMsg['node']; leaves: Leaf[] }[] | undefined;
+
+  private shape(): { key: string; node: ExposureMsg['node']; leaves: Leaf[] }[] {
+    if (this.groups) return this.groups;
+    const byKey = new Map<string, { key: string; node: ExposureMsg['node']; leaves: Leaf[] }>();
     const add = (node: ExposureMsg['node'], leaf: Leaf): void => {
       const key = nodeKey(node);
-      let g = groups.get(key);
-      if (!g) groups.set(key, (g = { node, leaves: [] }));
+      let g = byKey.get(key);
+      if (!g) byKey.set(key, (g = { key, node, leaves: [] }));
       g.leaves.push(leaf);
     };
     for (const leaf of this.leaves) {
@@ -143,9 +146,15 @@ export class DemoBook {
       add({ desk: leaf.desk, book: leaf.book, underlying: leaf.underlying }, leaf);
       add({ underlying: leaf.underlying }, leaf);
     }
+    this.groups = [...byKey.values()].sort((a, b) => (a.key < b.key ? -1 : a.key > b.key ? 1 : 0));
+    return this.groups;
+  }
+
+  /** Every node the engine would keep for this book: firm, desk, desk/book, desk/book/underlying, underlying. */
+  exposures(): ExposureMsg[] {
     const asOf = this.asOf();
     const out: ExposureMsg[] = [];
-    for (const [key, { node, leaves }] of groups) {
+    for (const { key, node, leaves } of this.shape()) {
       const sums = { pv: 0, pnl: 0, cashDelta: 0, cashGamma: 0, vega: 0, theta: 0, rho: 0 };
       let delta = 0;
       let gamma = 0;
@@ -173,6 +182,6 @@ export class DemoBook {
         stale,
       });
     }
-    return out.sort((a, b) => (a.nodeKey < b.nodeKey ? -1 : a.nodeKey > b.nodeKey ? 1 : 0));
+    return out;
   }
 }
