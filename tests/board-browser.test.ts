@@ -3,6 +3,7 @@
 // browser itself (its EventSource implements the WHATWG HTML "server-sent events" section, its
 // accessibility tree the WAI-ARIA treegrid pattern) and the contract's own schemas, which every
 // message fed here must pass.
+import { spawn, type ChildProcess } from 'node:child_process';
 import { copyFile, mkdir } from 'node:fs/promises';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Page } from 'playwright-core';
@@ -15,6 +16,7 @@ import {
   type StaleFeedMsg,
 } from '@keelson/shared-types';
 import { SseHub, type LimitView } from '@keelson/http';
+import { KafkaBus, ensureTopics, topicPlan, waitForTopics } from '@keelson/bus';
 import { DemoBook } from '../services/board/demo/scenario.ts';
 import {
   chromiumAvailability,
@@ -23,6 +25,7 @@ import {
   type BoardServer,
   type BrowserSession,
 } from './support/browser.ts';
+import { findBroker, uniquePrefix } from './support/kafka.ts';
 
 const { available } = chromiumAvailability();
 const ARTIFACTS = new URL('./artifacts/', import.meta.url);
@@ -357,5 +360,140 @@ describe.skipIf(!available)('desk view on the real embedded engine', () => {
     await mkdir(ARTIFACTS, { recursive: true });
     await page.screenshot({ path: new URL('board-embedded.png', ARTIFACTS).pathname });
     expect(problems).toEqual([]);
+  });
+});
+
+// The board service on Kafka: `keelson board` as its own process reads the topics the engine
+// writes (records published here as the engine would), and the page it serves shows them, with the
+// limit's bounds from the limits topic rather than guessed from alerts.
+const broker = available ? await findBroker() : undefined;
+describe.skipIf(!available || !broker)('desk view from keelson board on Kafka', () => {
+  let browser: BrowserSession;
+  let child: ChildProcess;
+  let url = '';
+  let bus: KafkaBus;
+  const prefix = uniquePrefix('board');
+  const book = new DemoBook({ seed: 23 });
+  let stderr = '';
+
+  beforeAll(async () => {
+    bus = new KafkaBus({ brokers: broker!.brokers, topicPrefix: prefix, clientId: 'board-test' });
+    const admin = bus.admin();
+    await admin.connect();
+    const plan = topicPlan({ partitions: 2 });
+    await ensureTopics(admin, prefix, plan);
+    await waitForTopics(
+      admin,
+      plan.map((s) => prefix + s.name),
+    );
+    await admin.disconnect();
+    child = spawn(
+      process.execPath,
+      [
+        'services/cli/bin/keelson.js',
+        'board',
+        '--brokers',
+        broker!.brokers.join(','),
+        '--topic-prefix',
+        prefix,
+        '--port',
+        '0',
+        '--log-level',
+        'warn',
+      ],
+      {
+        cwd: new URL('..', import.meta.url).pathname,
+        stdio: ['ignore', 'pipe', 'pipe'],
+      },
+    );
+    child.stderr!.on('data', (d: Buffer) => (stderr += d.toString()));
+    url = await new Promise<string>((resolve, reject) => {
+      let out = '';
+      child.stdout!.on('data', (d: Buffer) => {
+        out += d.toString();
+        const m = /(http:\/\/127\.0\.0\.1:\d+)\//.exec(out);
+        if (m) resolve(m[1]!);
+      });
+      child.once('exit', (code) => reject(new Error(`keelson board exited ${code}: ${stderr}`)));
+    });
+    browser = await openBrowser();
+  }, 180_000);
+
+  afterAll(async () => {
+    await browser?.close();
+    if (child && child.exitCode === null) {
+      const exited = new Promise((r) => child.once('exit', r));
+      child.kill('SIGINT');
+      await exited;
+    }
+    await bus?.close();
+  });
+
+  it('serves the nodes, the limit with its bounds and the breach read from the topics', async () => {
+    const orca = book.exposures().find((e) => e.nodeKey === 'desk=ORCA')!;
+    const max = Math.ceil(Math.abs(orca.vega) / 1.2);
+    // Shaped as the contract's limit message; the bound is set so the node stands at 120%.
+    const limit = {
+      type: 'limit',
+      limitId: 'L-ORCA-VEGA',
+      scope: { desk: 'ORCA' },
+      metric: 'vega',
+      max,
+      min: -max,
+      warnAt: 0.75,
+      hysteresis: 0.05,
+      ts: book.asOf(),
+    };
+    await bus.publish('limits', [{ key: limit.limitId, value: JSON.stringify(limit) }]);
+    await bus.publish(
+      'exposures',
+      book.exposures().map((e) => ({ key: e.nodeKey, value: JSON.stringify(valid.exposure(e)) })),
+    );
+    const u = Math.abs(orca.vega) / max;
+    const breach = valid.alert({
+      type: 'alert',
+      alertId: 'L-ORCA-VEGA#1',
+      limitId: 'L-ORCA-VEGA',
+      nodeKey: 'desk=ORCA',
+      metric: 'vega',
+      value: orca.vega,
+      bound: orca.vega >= 0 ? max : -max,
+      utilization: u,
+      severity: 'breach',
+      previous: 'ok',
+      state: 'raised',
+      ts: book.asOf(),
+    });
+    await bus.publish('alerts', [
+      { key: breach.limitId, value: JSON.stringify(breach) },
+      { key: 'garbage', value: '{not json' },
+    ]);
+
+    await expect.poll(async () => (await fetch(`${url}/readyz`)).status, { timeout: 30_000 }).toBe(200);
+    await expect
+      .poll(async () => ((await (await fetch(`${url}/exposures`)).json()) as ExposureMsg[]).length, {
+        timeout: 30_000,
+      })
+      .toBe(book.exposures().length);
+
+    const page = await browser.context.newPage();
+    await page.goto(`${url}/`);
+    await page.waitForSelector('body[data-ready="true"]');
+    await expect.poll(() => page.locator('.grid-body .row[data-key="desk=ORCA"]').count()).toBe(1);
+    const bar = page.locator('.limit[data-limit="L-ORCA-VEGA"]');
+    await expect.poll(() => bar.getAttribute('data-level')).toBe('breach');
+    const foot = (await bar.locator('.limit-foot').textContent()) ?? '';
+    // warnAt 0.75 comes from the limits topic: an alert alone would leave the default 80% "(assumed)".
+    expect(foot).toContain('warns at 75.0%');
+    expect(foot).not.toContain('assumed');
+    expect(foot).toContain(`${(u * 100).toFixed(1)}%`);
+    await expect
+      .poll(() => page.locator('.signals .sig.sev-breach .sig-limit').textContent())
+      .toBe('L-ORCA-VEGA');
+    // The unreadable record was counted, not shown.
+    const metrics = await (await fetch(`${url}/metrics`)).text();
+    expect(metrics).toMatch(/keelson_board_records_total\{topic="alerts",outcome="invalid"\} 1/);
+    expect(metrics).toMatch(/keelson_board_sse_clients 1/);
+    await page.close();
   });
 });
