@@ -41,6 +41,27 @@ describe('priceBatch', () => {
     }
   });
 
+  it('reuses discount factors across runs of equal tau, r, b without changing a bit', () => {
+    const n = 60;
+    const b = allocOptionBatch(n);
+    for (let i = 0; i < n; i++) {
+      const group = Math.floor(i / 7); // runs of 7 rows share the expiry and rates
+      b.right[i] = i % 2;
+      b.payoff[i] = i % 3;
+      b.spot[i] = 100;
+      b.strike[i] = 80 + i;
+      b.tau[i] = group % 3 === 2 ? 0 : 0.1 + group * 0.3;
+      b.vol[i] = 0.1 + (i % 5) * 0.05;
+      b.rate[i] = 0.01 * (group % 4);
+      b.carry[i] = 0.005 * (group % 3);
+    }
+    const out = allocGreeksBatch(n);
+    priceBatch(b, out);
+    const single = allocGreeksBatch(n);
+    for (let i = 0; i < n; i++) priceBatch(b, single, i, i + 1); // every row alone: nothing reused
+    for (const k of Object.keys(out) as (keyof typeof out)[]) expect([...out[k]]).toEqual([...single[k]]);
+  });
+
   it('prices only the asked range and checks it', () => {
     const b = allocOptionBatch(4);
     b.spot.fill(100);

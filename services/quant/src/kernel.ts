@@ -8,8 +8,9 @@
 // analytic derivatives of those prices (derived in services/quant/README.md; each is checked
 // against central finite differences in the tests).
 //
-// Cost per option: one log, three exp (discount, carry discount, one Gaussian) and a sqrt. The
-// second Gaussian comes free from S* e^{(b-r)tau} n(d1) = K e^{-r tau} n(d2).
+// Cost per option: one log, three exp (discount, carry discount, one Gaussian) and a sqrt; the
+// discount factors are reused while tau, r and b repeat. The second Gaussian comes free from
+// S* e^{(b-r)tau} n(d1) = K e^{-r tau} n(d2).
 
 import { gaussian, normCdfWithGaussian } from './normal.ts';
 import type { GreeksBatch, OptionBatch } from './types.ts';
@@ -48,6 +49,15 @@ export function valueRange(batch: OptionBatch, out: GreeksBatch, from: number, t
   const oVanna = out.vanna;
   const oVolga = out.volga;
   const oCharm = out.charm;
+  // Options of one underlying and expiry share tau, r and b: their discount factors are computed
+  // once per run of equal values (the engine revalues an underlying's options together).
+  let lastTau = NaN;
+  let lastR = NaN;
+  let lastB = NaN;
+  let sqrtT = 0;
+  let half = 0;
+  let dfR = 0;
+  let dfQ = 0;
   for (let i = from; i < to; i++) {
     const isPut = rightA[i]!;
     const payoff = payoffA[i]!;
@@ -75,15 +85,20 @@ export function valueRange(batch: OptionBatch, out: GreeksBatch, from: number, t
       continue;
     }
 
-    const sqrtT = Math.sqrt(tau);
+    if (tau !== lastTau || r !== lastR || b !== lastB) {
+      sqrtT = Math.sqrt(tau);
+      half = 0.5 / tau; // 1/(2 tau)
+      dfR = Math.exp(-r * tau); // e^{-r tau}
+      dfQ = Math.exp((b - r) * tau); // e^{(b-r) tau}
+      lastTau = tau;
+      lastR = r;
+      lastB = b;
+    }
     const vst = vol * sqrtT;
     // Reciprocals once: a division costs several multiplications and this loop needs many.
     const iVst = 1 / vst;
     const iVol = 1 / vol;
     const iS = 1 / s;
-    const half = 0.5 / tau; // 1/(2 tau)
-    const dfR = Math.exp(-r * tau); // e^{-r tau}
-    const dfQ = Math.exp((b - r) * tau); // e^{(b-r) tau}
     const sd = s * dfQ;
     const kd = k * dfR;
     const d1 = (Math.log(s / k) + (b + 0.5 * vol * vol) * tau) * iVst;
