@@ -285,6 +285,22 @@ describe.skipIf(!available)('desk view in chromium', () => {
     await expect.poll(activeKey).toBe('firm');
   });
 
+  it('switches theme on the toggle, remembers it, and filters the log to breaches', async () => {
+    const theme = () => page.evaluate(() => document.documentElement.dataset.theme ?? 'auto');
+    expect(await theme()).toBe('auto');
+    await page.click('#theme-toggle');
+    expect(await theme()).toBe('light');
+    await page.click('#theme-toggle');
+    expect(await theme()).toBe('dark');
+    expect(await page.evaluate(() => localStorage.getItem('keelson.board.theme'))).toBe('dark');
+    await page.click('#theme-toggle');
+    expect(await theme()).toBe('auto');
+    await page.check('#only-breach');
+    expect(await page.locator('.signals .sig:visible').count()).toBe(1);
+    expect(await page.locator('.signals .sig:visible .sig-limit').textContent()).toBe('L-ORCA-VEGA');
+    await page.uncheck('#only-breach');
+  });
+
   it('charts the chosen node over the session and saves a screenshot', async () => {
     for (let i = 0; i < 40; i++) {
       book.tick(1000);

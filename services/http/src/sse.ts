@@ -45,7 +45,7 @@ export interface SseHubOptions {
   /** Alerts the hub remembers itself, merged into every state event; default 500. */
   recentAlerts?: number;
   /**
-   * A client whose unsent alerts exceed this many bytes is disconnected (it reconnects and gets a
+   * A client whose unsent alerts exceed this many characters of JSON is disconnected (it reconnects and gets a
    * fresh state event). The alternative, buffering without bound for a browser that never reads,
    * would let one dead tab exhaust the engine's memory. Default 16 MiB.
    */
@@ -121,7 +121,10 @@ export class SseHub {
     this.heartbeatTimer.unref();
   }
 
-  /** Latest wins per node until each client's next flush: O(1) per client. */
+  /**
+   * Latest wins per node until each client's next flush: O(1) per client. A published message is
+   * taken as immutable: its JSON is made once and shared by every client that sends it.
+   */
   publishExposure(e: ExposureMsg): void {
     for (const c of this.clients) {
       const had = c.pendingNodes.size;
