@@ -44,6 +44,28 @@ instance_pid() {
   echo "$pid"
 }
 
+# A broker of this instance whose pid file was lost (a concurrent stop, a wiped .run): found by its
+# command line, which names this instance's config file.
+find_orphan() {
+  local f pid
+  for f in /proc/[0-9]*/cmdline; do
+    pid="${f#/proc/}"
+    pid="${pid%/cmdline}"
+    if { tr '\0' ' ' <"$f"; } 2>/dev/null | grep -q "kafka\.Kafka $dir/server\.properties"; then
+      echo "$pid"
+      return 0
+    fi
+  done
+  return 1
+}
+
+# start and stop of one instance never overlap.
+lock_instance() {
+  mkdir -p "$run_root"
+  exec 8>"$run_root/.lock-$mode-$port"
+  flock -w 600 8 || die "timed out waiting for another start or stop of $mode-$port"
+}
+
 port_in_use() {
   (exec 3<>"/dev/tcp/127.0.0.1/$1") 2>/dev/null
 }

@@ -15,8 +15,9 @@ import type {
   Producer,
   SASLOptions,
 } from 'kafkajs';
-import type { BatchHandler, Bus, BusRecord, OutRecord } from './bus.ts';
+import type { Bus, BusRecord, OutRecord } from './bus.ts';
 import { describeKafkaConfig, KafkaConfigError, resolveConnection } from './kafka-config.ts';
+import { javaPartition } from './kafka-partition.ts';
 import type { KafkaConnection, KafkaSasl } from './kafka-config.ts';
 
 const { Kafka, Partitioners, logLevel, CompressionTypes } = kafkajs;
@@ -58,8 +59,6 @@ export interface KafkaBusOptions {
   env?: NodeJS.ProcessEnv;
   /** Where a group with no committed offset starts; default true (the book is rebuilt from the start). */
   fromBeginning?: boolean;
-  /** 0 (default) commits after every batch; more batches commits, still only after handlers resolved. */
-  commitIntervalMs?: number;
   sessionTimeoutMs?: number;
   heartbeatIntervalMs?: number;
   /** Longest a fetch waits for data when there is none: bounds idle latency. Default 50 ms. */
@@ -81,6 +80,50 @@ export interface SubscribeOptions {
   /** Another group than the bus's default (e.g. a per-instance group that reads a topic whole). */
   groupId?: string;
   fromBeginning?: boolean;
+  /**
+   * Commit each batch's offsets after its handler resolves (default true). false: a reader that
+   * always starts over (a per-instance table of a compacted topic) and leaves no trace in the group.
+   */
+  commit?: boolean;
+  /**
+   * Rebuild on every assignment: each assigned partition is read again from its earliest offset.
+   * Records below the boundary (the committed offset; with commit false, the end of the partition
+   * at assignment) arrive with `restoring: true`: they were handled before and their outputs are
+   * on the bus, so the handler rebuilds state from them and publishes nothing. A partition that
+   * reaches its boundary waits (paused) until every assigned partition has, then `beforeLive` is
+   * awaited, `onPhase('live')` is called, and all continue together: no output is ever computed
+   * from a half-rebuilt state.
+   */
+  rebuild?: boolean;
+  /** Called with 'restoring' before the first batch of an assignment, and 'live' as above. */
+  onPhase?: (e: PhaseEvent) => void;
+  beforeLive?: () => Promise<void>;
+}
+
+export interface PhaseEvent {
+  phase: 'restoring' | 'live';
+  groupId: string;
+  generation: number;
+  assignment: PartitionAssignment[];
+}
+
+/** What a Kafka batch handler learns beside the records. */
+export interface BatchContext {
+  groupId: string;
+  /** Increments with every assignment this member receives. */
+  generation: number;
+  /** See SubscribeOptions.rebuild. */
+  restoring: boolean;
+}
+
+export type KafkaBatchHandler = (batch: BusRecord[], ctx: BatchContext) => Promise<void>;
+
+interface PartitionProgress {
+  /** First offset that is not restoring. */
+  boundary: bigint;
+  restored: boolean;
+  /** Paused by the rebuild (not by the user) while others restore. */
+  heldBack: boolean;
 }
 
 type MemberState = 'connecting' | 'rebalancing' | 'joined' | 'crashed' | 'stopped';
@@ -93,6 +136,12 @@ interface Member {
   assignment: PartitionAssignment[];
   lastFetchAt: number;
   lastError?: string;
+  opts: SubscribeOptions;
+  generation: number;
+  /** Resolves when the current assignment's offsets are known and seeks are placed. */
+  prep: Promise<void> | undefined;
+  progress: Map<string, PartitionProgress>;
+  live: boolean;
 }
 
 export interface KafkaBusStatus {
@@ -170,7 +219,6 @@ export class KafkaBus implements Bus {
     this.groupId = opts.groupId ?? env.KAFKA_GROUP_ID ?? DEFAULTS.groupId;
     positiveInt('maxInFlightRequests', opts.maxInFlightRequests, 1, 1, 5);
     positiveInt('partitionsConsumedConcurrently', opts.partitionsConsumedConcurrently, 1, 1, 1024);
-    positiveInt('commitIntervalMs', opts.commitIntervalMs, 0, 0);
     const heartbeat = positiveInt(
       'heartbeatIntervalMs',
       opts.heartbeatIntervalMs,
@@ -247,7 +295,7 @@ export class KafkaBus implements Bus {
    * Starts a consumer of `topics` (logical names) in the bus's group (or opts.groupId) and resolves
    * once it is running. One batch is one partition's fetched records, in offset order.
    */
-  async subscribe(topics: string[], handler: BatchHandler, opts: SubscribeOptions = {}): Promise<void> {
+  async subscribe(topics: string[], handler: KafkaBatchHandler, opts: SubscribeOptions = {}): Promise<void> {
     if (this.closed) throw new Error('kafka bus is closed');
     if (topics.length === 0) throw new KafkaConfigError('subscribe needs at least one topic');
     const groupId = opts.groupId ?? this.groupId;
@@ -273,6 +321,11 @@ export class KafkaBus implements Bus {
       state: 'connecting',
       assignment: [],
       lastFetchAt: 0,
+      opts,
+      generation: 0,
+      prep: undefined,
+      progress: new Map(),
+      live: false,
     };
     this.members.push(member);
     this.watch(member);
@@ -285,34 +338,210 @@ export class KafkaBus implements Bus {
       fromBeginning: opts.fromBeginning ?? this.opts.fromBeginning ?? true,
     });
     await consumer.run({
-      autoCommit: true,
-      autoCommitInterval: this.opts.commitIntervalMs ?? 0,
-      autoCommitThreshold: null,
+      // Commits are explicit, per batch, after the handler (kafkajs's auto-commit would also commit
+      // on seek, which the rebuild uses to go back to the start).
+      autoCommit: false,
       eachBatchAutoResolve: false,
       partitionsConsumedConcurrently: this.opts.partitionsConsumedConcurrently ?? 1,
-      eachBatch: (payload) => this.handleBatch(payload, handler),
+      eachBatch: (payload) => this.handleBatch(member, payload, handler),
     });
   }
 
-  private async handleBatch(p: EachBatchPayload, handler: BatchHandler): Promise<void> {
+  private async handleBatch(member: Member, p: EachBatchPayload, handler: KafkaBatchHandler): Promise<void> {
+    if (member.prep) await member.prep;
     const { batch } = p;
+    const generation = member.generation;
     const last = batch.messages[batch.messages.length - 1];
     if (!last || !p.isRunning() || p.isStale()) return;
     const topic = this.logical(batch.topic);
     const records = batch.messages.map((m) => this.toRecord(topic, batch.partition, m));
-    // A slow handler (a publish waiting for a broker that came back) must not cost the partition:
-    // keep the membership alive while it works. kafkajs throttles heartbeats to its interval.
+    const commit = member.opts.commit ?? true;
+    const progress = member.opts.rebuild ? member.progress.get(`${topic}:${batch.partition}`) : undefined;
+
+    if (progress && !progress.restored) {
+      const restoring = records.filter((r) => BigInt(r.offset!) < progress.boundary);
+      if (restoring.length > 0) {
+        await this.withHeartbeat(p, () =>
+          handler(restoring, { groupId: member.groupId, generation, restoring: true }),
+        );
+        if (member.generation !== generation) return;
+        p.resolveOffset(restoring[restoring.length - 1]!.offset!);
+      }
+      if (restoring.length === records.length && BigInt(last.offset) + 1n < progress.boundary) return;
+      // At the boundary: hold this partition until all are there (its unresolved records are
+      // fetched again on resume).
+      progress.restored = true;
+      progress.heldBack = true;
+      member.consumer.pause([{ topic: batch.topic, partitions: [batch.partition] }]);
+      await this.maybeGoLive(member, generation);
+      return;
+    }
+    if (member.opts.rebuild && !member.live) return; // a held-back partition's batch in flight
+
+    await this.withHeartbeat(p, () =>
+      handler(records, { groupId: member.groupId, generation, restoring: false }),
+    );
+    // A batch handled across a rebalance is not ours to commit: its new owner reads it again.
+    if (member.generation !== generation) return;
+    p.resolveOffset(last.offset);
+    if (commit) {
+      await p.commitOffsetsIfNecessary({
+        topics: [
+          {
+            topic: batch.topic,
+            partitions: [{ partition: batch.partition, offset: (BigInt(last.offset) + 1n).toString() }],
+          },
+        ],
+      });
+    }
+  }
+
+  /** A slow handler (a publish waiting for a broker that came back) must not cost the partition. */
+  private async withHeartbeat(p: EachBatchPayload, work: () => Promise<void>): Promise<void> {
+    // kafkajs throttles heartbeats to its interval; calling more often is harmless.
     const beat = setInterval(
       () => void p.heartbeat().catch(() => undefined),
       Math.max(100, Math.floor((this.opts.heartbeatIntervalMs ?? DEFAULTS.heartbeatIntervalMs) / 2)),
     );
     try {
-      await handler(records);
+      await work();
     } finally {
       clearInterval(beat);
     }
-    p.resolveOffset(last.offset);
-    await p.commitOffsetsIfNecessary();
+  }
+
+  private async maybeGoLive(member: Member, generation: number): Promise<void> {
+    if (member.live || member.generation !== generation) return;
+    for (const pr of member.progress.values()) if (!pr.restored) return;
+    member.live = true; // before the await: a second caller must not go live twice
+    try {
+      await member.opts.beforeLive?.();
+    } catch (e) {
+      this.opts.logger?.error({ groupId: member.groupId, err: (e as Error).message }, 'before going live');
+      throw e;
+    }
+    if (member.generation !== generation) return;
+    const held: { topic: string; partitions: number[] }[] = [];
+    for (const [key, pr] of member.progress) {
+      if (!pr.heldBack) continue;
+      pr.heldBack = false;
+      const cut = key.lastIndexOf(':');
+      held.push({ topic: this.physical(key.slice(0, cut)), partitions: [Number(key.slice(cut + 1))] });
+    }
+    member.opts.onPhase?.({
+      phase: 'live',
+      groupId: member.groupId,
+      generation,
+      assignment: member.assignment,
+    });
+    if (held.length) member.consumer.resume(held);
+  }
+
+  /**
+   * Offsets of a new assignment: where each partition starts (its earliest offset, by seek) and
+   * where restoring ends. Runs before any batch of the assignment is handled.
+   */
+  private async prepareRebuild(member: Member, generation: number): Promise<void> {
+    const admin = await this.sharedAdmin();
+    const commit = member.opts.commit ?? true;
+    const topics = member.assignment.map((a) => this.physical(a.topic));
+    const committed = new Map<string, bigint>();
+    if (commit && topics.length) {
+      for (const t of await admin.fetchOffsets({ groupId: member.groupId, topics })) {
+        for (const pp of t.partitions) committed.set(`${t.topic}:${pp.partition}`, BigInt(pp.offset));
+      }
+    }
+    const progress = new Map<string, PartitionProgress>();
+    const seeks: { topic: string; partition: number; offset: string }[] = [];
+    for (const a of member.assignment) {
+      const physical = this.physical(a.topic);
+      const offsets = await admin.fetchTopicOffsets(physical);
+      for (const partition of a.partitions) {
+        const o = offsets.find((x) => x.partition === partition);
+        const low = BigInt(o?.low ?? '0');
+        const high = BigInt(o?.high ?? '0');
+        const done = committed.get(`${physical}:${partition}`) ?? -1n;
+        let boundary = commit ? (done >= 0n ? done : low) : high;
+        if (boundary < low) boundary = low; // retention removed what was committed
+        if (boundary > high) boundary = high;
+        const restored = boundary <= low;
+        progress.set(`${a.topic}:${partition}`, { boundary, restored, heldBack: false });
+        seeks.push({ topic: physical, partition, offset: low.toString() });
+      }
+    }
+    if (member.generation !== generation) return;
+    member.progress = progress;
+    for (const sk of seeks) member.consumer.seek(sk);
+    // Partitions with nothing to restore wait for the others, like those that reach their boundary.
+    const hold: { topic: string; partitions: number[] }[] = [];
+    const anyRestoring = [...progress.values()].some((pr) => !pr.restored);
+    if (anyRestoring) {
+      for (const [key, pr] of progress) {
+        if (!pr.restored) continue;
+        pr.heldBack = true;
+        const cut = key.lastIndexOf(':');
+        hold.push({ topic: this.physical(key.slice(0, cut)), partitions: [Number(key.slice(cut + 1))] });
+      }
+      if (hold.length) member.consumer.pause(hold);
+    }
+  }
+
+  private adminReady: Promise<Admin> | undefined;
+  private sharedAdmin(): Promise<Admin> {
+    if (!this.adminReady) {
+      const admin = this.kafka.admin();
+      this.adminReady = admin.connect().then(
+        () => admin,
+        (e: unknown) => {
+          this.adminReady = undefined;
+          throw e;
+        },
+      );
+    }
+    return this.adminReady;
+  }
+
+  /** Partitions of a (logical) topic, from the cluster's metadata; cached. */
+  async partitionCount(topic: string): Promise<number> {
+    const cached = this.partitionCounts.get(topic);
+    if (cached !== undefined) return cached;
+    const admin = await this.sharedAdmin();
+    const meta = await admin.fetchTopicMetadata({ topics: [this.physical(topic)] });
+    const n = meta.topics[0]?.partitions.length ?? 0;
+    if (n === 0) throw new Error(`topic ${this.physical(topic)} has no partitions`);
+    this.partitionCounts.set(topic, n);
+    return n;
+  }
+  private readonly partitionCounts = new Map<string, number>();
+
+  /**
+   * Publishes records whose partition is chosen by another key than the record key (partials:
+   * keyed `nodeKey|partition` for compaction, partitioned by nodeKey so that one node's partials
+   * meet in one aggregator). Same Java murmur2 rule as the producer's partitioner.
+   */
+  async publishPartitioned(topic: string, records: (OutRecord & { partitionKey: string })[]): Promise<void> {
+    if (records.length === 0) return;
+    const n = await this.partitionCount(topic);
+    const producer = await this.connectProducer();
+    try {
+      await producer.send({
+        topic: this.physical(topic),
+        acks: -1,
+        messages: records.map((r) => ({
+          key: r.key,
+          value: r.value,
+          partition: javaPartition(r.partitionKey, n),
+        })),
+      });
+      if (this.producerError !== undefined) {
+        this.producerError = undefined;
+        this.updateConnected();
+      }
+    } catch (e) {
+      this.producerError = (e as Error).message;
+      this.updateConnected();
+      throw e;
+    }
   }
 
   private toRecord(topic: string, partition: number, m: KafkaMessage): BusRecord {
@@ -340,6 +569,8 @@ export class KafkaBus implements Bus {
     consumer.on(ev.REBALANCING, () => {
       member.state = 'rebalancing';
       member.assignment = [];
+      member.generation++;
+      member.live = false;
       this.updateConnected();
       this.opts.onRebalance?.({ kind: 'rebalancing', groupId: member.groupId });
     });
@@ -354,6 +585,27 @@ export class KafkaBus implements Bus {
         .sort((a, b) => (a.topic < b.topic ? -1 : a.topic > b.topic ? 1 : 0));
       this.updateConnected();
       this.opts.onRebalance?.({ kind: 'assigned', groupId: member.groupId, assignment: member.assignment });
+      if (member.opts.rebuild) {
+        const generation = ++member.generation;
+        member.live = false;
+        member.progress = new Map();
+        member.opts.onPhase?.({
+          phase: 'restoring',
+          groupId: member.groupId,
+          generation,
+          assignment: member.assignment,
+        });
+        const prep = this.prepareRebuild(member, generation).then(() => this.maybeGoLive(member, generation));
+        member.prep = prep.catch((err: unknown) => {
+          // The batch handler awaits this: failing it fails the batch, and kafkajs restarts the member.
+          this.opts.logger?.error(
+            { groupId: member.groupId, err: (err as Error).message },
+            'rebuild preparation failed',
+          );
+          throw err;
+        });
+        member.prep.catch(() => undefined);
+      }
     });
     consumer.on(ev.CRASH, (e) => {
       member.state = e.payload.restart ? 'connecting' : 'crashed';
@@ -480,6 +732,7 @@ export class KafkaBus implements Bus {
     this.closed = true;
     clearInterval(this.staleTimer);
     await Promise.allSettled(this.members.map((m) => m.consumer.disconnect()));
+    if (this.adminReady) await this.adminReady.then((a) => a.disconnect()).catch(() => undefined);
     if (this.producerReady) {
       await this.producerReady.then((p) => p.disconnect()).catch(() => undefined);
     }
