@@ -145,7 +145,8 @@ export function startBoard({ source } = {}) {
     requestAnimationFrame(frame);
   }
   requestAnimationFrame(frame);
-  return { tree, limits, history, counters };
+  // `ingest` lets a benchmark feed the page without a server: the same handlers the stream calls.
+  return { tree, limits, history, counters, ingest: handlers };
 }
 
 /**
