@@ -3,13 +3,25 @@
 // all measured in this one process. Run: npm run bench -- quant
 import { createRequire } from 'node:module';
 import { loadavg } from 'node:os';
-import { allocGreeksBatch, allocOptionBatch, priceBatch, priceOption, PAYOFF_CODE, RIGHT_CODE } from '@keelson/quant';
+import {
+  allocGreeksBatch,
+  allocOptionBatch,
+  priceBatch,
+  priceOption,
+  PAYOFF_CODE,
+  RIGHT_CODE,
+} from '@keelson/quant';
 import type { OptionBatch, OptionInputs, Payoff, Right } from '@keelson/quant';
 import { Xoshiro128 } from '../../services/quant/test/prng.ts';
 
 const require = createRequire(import.meta.url);
-const bs = require('black-scholes') as { blackScholes: (s: number, k: number, t: number, v: number, r: number, cp: string) => number };
-const gk = require('greeks') as Record<'getDelta' | 'getGamma' | 'getVega' | 'getTheta' | 'getRho', (...a: (number | string)[]) => number>;
+const bs = require('black-scholes') as {
+  blackScholes: (s: number, k: number, t: number, v: number, r: number, cp: string) => number;
+};
+const gk = require('greeks') as Record<
+  'getDelta' | 'getGamma' | 'getVega' | 'getTheta' | 'getRho',
+  (...a: (number | string)[]) => number
+>;
 
 const N = 1_000_000;
 const gc = (globalThis as { gc?: () => void }).gc ?? (() => {});
@@ -128,7 +140,21 @@ const rows: { name: string; what: string; n: number; sec: { wall: number; cpu: n
 const tBatch = time(() => priceBatch(book, out), 3, 9);
 rows.push({ name: 'priceBatch (typed arrays)', what: 'price + 8 Greeks', n: N, sec: tBatch });
 let bad = 0;
-for (let i = 0; i < N; i++) if (!Number.isFinite(out.price[i]! + out.delta[i]! + out.gamma[i]! + out.vega[i]! + out.theta[i]! + out.rho[i]! + out.vanna[i]! + out.volga[i]! + out.charm[i]!)) bad++;
+for (let i = 0; i < N; i++)
+  if (
+    !Number.isFinite(
+      out.price[i]! +
+        out.delta[i]! +
+        out.gamma[i]! +
+        out.vega[i]! +
+        out.theta[i]! +
+        out.rho[i]! +
+        out.vanna[i]! +
+        out.volga[i]! +
+        out.charm[i]!,
+    )
+  )
+    bad++;
 
 const grouped = makeGroupedBook(N);
 const tGrouped = time(() => priceBatch(grouped, out), 3, 9);
@@ -152,7 +178,14 @@ const tBs = time(
     let s = 0;
     for (let j = 0; j < nBs; j++) {
       const i = vanillaIdx[j]!;
-      s += bs.blackScholes(book.spot[i]!, book.strike[i]!, book.tau[i]!, book.vol[i]!, book.rate[i]!, book.right[i] === 0 ? 'call' : 'put');
+      s += bs.blackScholes(
+        book.spot[i]!,
+        book.strike[i]!,
+        book.tau[i]!,
+        book.vol[i]!,
+        book.rate[i]!,
+        book.right[i] === 0 ? 'call' : 'put',
+      );
     }
     sink += s;
   },
@@ -169,7 +202,13 @@ const tGk = time(
       const i = vanillaIdx[j]!;
       const a = [book.spot[i]!, book.strike[i]!, book.tau[i]!, book.vol[i]!, book.rate[i]!] as const;
       const cp = book.right[i] === 0 ? 'call' : 'put';
-      s += bs.blackScholes(...a, cp) + gk.getDelta(...a, cp) + gk.getGamma(...a) + gk.getVega(...a) + gk.getTheta(...a, cp) + gk.getRho(...a, cp);
+      s +=
+        bs.blackScholes(...a, cp) +
+        gk.getDelta(...a, cp) +
+        gk.getGamma(...a) +
+        gk.getVega(...a) +
+        gk.getTheta(...a, cp) +
+        gk.getRho(...a, cp);
     }
     sink += s;
   },

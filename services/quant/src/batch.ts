@@ -38,7 +38,9 @@ export function allocGreeksBatch(n: number): GreeksBatch {
 
 /** Value options [from, to) of `b` into the same indices of `out` (defaults: the whole batch). */
 export function priceBatch(b: OptionBatch, out: GreeksBatch, from = 0, to = b.n): void {
-  if (from < 0 || to > b.n || from > to) throw new RangeError(`batch range [${from}, ${to}) is outside [0, ${b.n})`);
-  if (out.price.length < to) throw new RangeError(`output batch holds ${out.price.length} rows, range ends at ${to}`);
+  if (from < 0 || to > b.n || from > to)
+    throw new RangeError(`batch range [${from}, ${to}) is outside [0, ${b.n})`);
+  if (out.price.length < to)
+    throw new RangeError(`output batch holds ${out.price.length} rows, range ends at ${to}`);
   valueRange(b, out, from, to);
 }

@@ -5,13 +5,25 @@ import type { Greeks, OptionInputs, Payoff, Right } from './types.ts';
 
 // The two npm packages are CommonJS without types.
 const require = createRequire(import.meta.url);
-const bsPkg = require('black-scholes') as { blackScholes: (s: number, k: number, t: number, v: number, r: number, cp: string) => number };
+const bsPkg = require('black-scholes') as {
+  blackScholes: (s: number, k: number, t: number, v: number, r: number, cp: string) => number;
+};
 const greeksPkg = require('greeks') as Record<
   'getDelta' | 'getGamma' | 'getVega' | 'getTheta' | 'getRho',
   (s: number, k: number, t: number, v: number, r: number, cp?: string) => number
 >;
 
-function opt(right: Right, payoff: Payoff, spot: number, strike: number, tau: number, rate: number, carry: number, vol: number, extra: Partial<OptionInputs> = {}): OptionInputs {
+function opt(
+  right: Right,
+  payoff: Payoff,
+  spot: number,
+  strike: number,
+  tau: number,
+  rate: number,
+  carry: number,
+  vol: number,
+  extra: Partial<OptionInputs> = {},
+): OptionInputs {
   return { right, payoff, spot, strike, tau, rate, carry, vol, ...extra };
 }
 const price = (p: OptionInputs): number => priceOption(p).price;
@@ -23,7 +35,7 @@ describe('published worked examples', () => {
     expect(price(opt('put', 'vanilla', 42, 40, 0.5, 0.1, 0.1, 0.2))).toBeCloseTo(0.81, 2);
   });
 
-  it("Hull, Greek letters chapter: S=49 K=50 r=5% sigma=20% T=20 weeks (from memory)", () => {
+  it('Hull, Greek letters chapter: S=49 K=50 r=5% sigma=20% T=20 weeks (from memory)', () => {
     // Hull quotes delta 0.522, gamma 0.066, theta -4.31 per year, vega 12.1 and rho 8.91 per
     // unit change (our vega and rho are per 0.01, our theta per calendar day).
     const g = priceOption(opt('call', 'vanilla', 49, 50, 20 / 52, 0.05, 0.05, 0.2));
@@ -56,7 +68,10 @@ describe('published worked examples', () => {
     expect(price(opt('put', 'vanilla', 75, 70, 0.5, 0.1, 0.05, 0.35))).toBeCloseTo(4.087, 4);
   });
   it('Haug cash-or-nothing put (Reiner-Rubinstein): 100, 80, 0.75, r 6%, b 0, 35%, cash 10 -> 2.6710', () => {
-    expect(price(opt('put', 'cash-digital', 100, 80, 0.75, 0.06, 0, 0.35, { cashAmount: 10 }))).toBeCloseTo(2.671, 4);
+    expect(price(opt('put', 'cash-digital', 100, 80, 0.75, 0.06, 0, 0.35, { cashAmount: 10 }))).toBeCloseTo(
+      2.671,
+      4,
+    );
   });
   it('Haug asset-or-nothing put: 70, 65, 0.5, r 7%, q 5%, 27% -> 20.2069', () => {
     expect(price(opt('put', 'asset-digital', 70, 65, 0.5, 0.07, 0.07 - 0.05, 0.27))).toBeCloseTo(20.2069, 4);
@@ -68,9 +83,15 @@ describe('published worked examples', () => {
     // Gamma: 55, 60, 0.75, r 10%, b 10%, 30% -> 0.0278
     expect(priceOption(opt('call', 'vanilla', 55, 60, 0.75, 0.1, 0.1, 0.3)).gamma).toBeCloseTo(0.0278, 4);
     // Theta of an index put: 430, 405, 0.0833, r 7%, q 5%, 20% -> -31.1924 per year
-    expect(priceOption(opt('put', 'vanilla', 430, 405, 0.0833, 0.07, 0.02, 0.2)).theta * 365).toBeCloseTo(-31.1924, 3);
+    expect(priceOption(opt('put', 'vanilla', 430, 405, 0.0833, 0.07, 0.02, 0.2)).theta * 365).toBeCloseTo(
+      -31.1924,
+      3,
+    );
     // Rho: 72, 75, 1, r 9%, b 9%, 19% -> call 38.7325 per unit of r
-    expect(priceOption(opt('call', 'vanilla', 72, 75, 1, 0.09, 0.09, 0.19)).rho * 100).toBeCloseTo(38.7325, 3);
+    expect(priceOption(opt('call', 'vanilla', 72, 75, 1, 0.09, 0.09, 0.19)).rho * 100).toBeCloseTo(
+      38.7325,
+      3,
+    );
   });
 });
 
@@ -113,7 +134,17 @@ describe('parity relations (common practice, no source needed)', () => {
     // Asset-or-nothing minus K cash-or-nothing is the vanilla, Greek by Greek.
     const unitC = priceOption(opt('call', 'cash-digital', s, k, t, r, b, v, { cashAmount: k }));
     const unitP = priceOption(opt('put', 'cash-digital', s, k, t, r, b, v, { cashAmount: k }));
-    for (const key of ['price', 'delta', 'gamma', 'vega', 'theta', 'rho', 'vanna', 'volga', 'charm'] as const) {
+    for (const key of [
+      'price',
+      'delta',
+      'gamma',
+      'vega',
+      'theta',
+      'rho',
+      'vanna',
+      'volga',
+      'charm',
+    ] as const) {
       const scale = Math.max(1, Math.abs(c[key]), Math.abs(assetC[key]));
       expect(Math.abs(assetC[key] - unitC[key] - c[key]), `call ${key}`).toBeLessThan(1e-11 * scale);
       expect(Math.abs(unitP[key] - assetP[key] - p[key]), `put ${key}`).toBeLessThan(1e-11 * scale);
@@ -132,10 +163,15 @@ describe('every Greek against central finite differences of the price', () => {
     (g(priceOption(bump(p, f, h))) - g(priceOption(bump(p, f, -h)))) / (2 * h);
 
   const payoffs: Payoff[] = ['vanilla', 'cash-digital', 'asset-digital'];
-  const rows = CASES.flatMap((c) => payoffs.flatMap((pay) => (['call', 'put'] as const).map((r) => [r, pay, ...c] as const)));
+  const rows = CASES.flatMap((c) =>
+    payoffs.flatMap((pay) => (['call', 'put'] as const).map((r) => [r, pay, ...c] as const)),
+  );
   it.each(rows)('%s %s S=%f K=%f tau=%f r=%f b=%f sigma=%f', (right, payoff, s, k, t, r, b, v) => {
     for (const rhoCarry of [true, false]) {
-      const p = opt(right, payoff, s, k, t, r, b, v, { rhoCarry, cashAmount: payoff === 'cash-digital' ? 3 : undefined });
+      const p = opt(right, payoff, s, k, t, r, b, v, {
+        rhoCarry,
+        cashAmount: payoff === 'cash-digital' ? 3 : undefined,
+      });
       const g = priceOption(p);
       // Steps on each variable's natural scale: spot moves by a small fraction of S sigma sqrt(t).
       const hs = 3e-4 * s * v * Math.sqrt(t);
@@ -159,7 +195,9 @@ describe('every Greek against central finite differences of the price', () => {
         // Central differences are O(h^2): 1e-6 relative, with a floor for Greeks that are near 0
         // relative to the option's scale.
         const floor = 1e-9 * Math.max(1, s) * (key === 'gamma' || key === 'vanna' ? 1 / s : 1);
-        expect(Math.abs(got - want), `${key} rhoCarry=${rhoCarry}: ${got} vs ${want}`).toBeLessThan(1e-6 * Math.abs(want) + floor);
+        expect(Math.abs(got - want), `${key} rhoCarry=${rhoCarry}: ${got} vs ${want}`).toBeLessThan(
+          1e-6 * Math.abs(want) + floor,
+        );
       }
       expect(Math.abs(g.vanna - vannaFromVega)).toBeLessThan(1e-6 * Math.abs(g.vanna) + 1e-9);
     }
@@ -168,12 +206,17 @@ describe('every Greek against central finite differences of the price', () => {
 
 describe('against the npm black-scholes and greeks packages (no dividends: b = r)', () => {
   const grid: [number, number, number, number, number][] = [];
-  for (const k of [60, 90, 100, 110, 160]) for (const t of [0.05, 0.5, 2]) for (const v of [0.1, 0.3, 0.8]) for (const r of [0, 0.03, 0.1]) grid.push([100, k, t, v, r]);
+  for (const k of [60, 90, 100, 110, 160])
+    for (const t of [0.05, 0.5, 2])
+      for (const v of [0.1, 0.3, 0.8]) for (const r of [0, 0.03, 0.1]) grid.push([100, k, t, v, r]);
   it('prices agree to 1e-9 absolute', () => {
     for (const [s, k, t, v, r] of grid) {
       for (const right of ['call', 'put'] as const) {
         const ours = price(opt(right, 'vanilla', s, k, t, r, r, v));
-        expect(Math.abs(ours - bsPkg.blackScholes(s, k, t, v, r, right)), `${right} ${k} ${t} ${v} ${r}`).toBeLessThan(1e-9);
+        expect(
+          Math.abs(ours - bsPkg.blackScholes(s, k, t, v, r, right)),
+          `${right} ${k} ${t} ${v} ${r}`,
+        ).toBeLessThan(1e-9);
       }
     }
   });
@@ -206,7 +249,10 @@ describe('extreme but valid inputs stay finite and inside the no-arbitrage bound
                     const k = 100 * m;
                     const g = priceOption(opt(right, payoff, s, k, t, r, b, v, { rhoCarry, cashAmount: 5 }));
                     for (const [key, val] of Object.entries(g)) {
-                      expect(Number.isFinite(val), `${key} ${right} ${payoff} v=${v} t=${t} m=${m} r=${r} b=${b}`).toBe(true);
+                      expect(
+                        Number.isFinite(val),
+                        `${key} ${right} ${payoff} v=${v} t=${t} m=${m} r=${r} b=${b}`,
+                      ).toBe(true);
                     }
                     const sd = s * Math.exp((b - r) * t);
                     const kd = k * Math.exp(-r * t);
@@ -243,10 +289,22 @@ describe('expired options (tau <= 0)', () => {
   it('are worth their intrinsic value with zero Greeks', () => {
     const zero = { delta: 0, gamma: 0, vega: 0, theta: 0, rho: 0, vanna: 0, volga: 0, charm: 0 };
     expect(priceOption(opt('call', 'vanilla', 105, 100, 0, 0.05, 0.05, 0.2))).toEqual({ price: 5, ...zero });
-    expect(priceOption(opt('put', 'vanilla', 105, 100, -0.01, 0.05, 0.05, 0.2))).toEqual({ price: 0, ...zero });
-    expect(priceOption(opt('put', 'cash-digital', 95, 100, 0, 0.05, 0.05, 0.2, { cashAmount: 4 }))).toEqual({ price: 4, ...zero });
-    expect(priceOption(opt('call', 'cash-digital', 95, 100, 0, 0.05, 0.05, 0.2))).toEqual({ price: 0, ...zero });
-    expect(priceOption(opt('call', 'asset-digital', 105, 100, 0, 0.05, 0.05, 0.2))).toEqual({ price: 105, ...zero });
+    expect(priceOption(opt('put', 'vanilla', 105, 100, -0.01, 0.05, 0.05, 0.2))).toEqual({
+      price: 0,
+      ...zero,
+    });
+    expect(priceOption(opt('put', 'cash-digital', 95, 100, 0, 0.05, 0.05, 0.2, { cashAmount: 4 }))).toEqual({
+      price: 4,
+      ...zero,
+    });
+    expect(priceOption(opt('call', 'cash-digital', 95, 100, 0, 0.05, 0.05, 0.2))).toEqual({
+      price: 0,
+      ...zero,
+    });
+    expect(priceOption(opt('call', 'asset-digital', 105, 100, 0, 0.05, 0.05, 0.2))).toEqual({
+      price: 105,
+      ...zero,
+    });
     // at the strike nothing is in the money
     expect(priceOption(opt('call', 'cash-digital', 100, 100, 0, 0.05, 0.05, 0.2)).price).toBe(0);
     // the vol of an expired option does not matter

@@ -11,7 +11,9 @@ const scratch = allocGreeksBatch(1);
 
 function requireFinite(name: string, v: number, positive: boolean): void {
   if (typeof v !== 'number' || !Number.isFinite(v) || (positive && !(v > 0))) {
-    throw new RangeError(`option ${name} must be a finite number${positive ? ' > 0' : ''} (got ${String(v)})`);
+    throw new RangeError(
+      `option ${name} must be a finite number${positive ? ' > 0' : ''} (got ${String(v)})`,
+    );
   }
 }
 

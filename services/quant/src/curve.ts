@@ -12,7 +12,9 @@ export function zeroRate(c: ZeroCurve, tau: number): number {
   const z = c.zeroRates;
   const n = t.length;
   if (n === 0 || z.length !== n) {
-    throw new RangeError(`zero curve needs as many zeroRates as tenors, at least one (got ${n} tenors, ${z.length} rates)`);
+    throw new RangeError(
+      `zero curve needs as many zeroRates as tenors, at least one (got ${n} tenors, ${z.length} rates)`,
+    );
   }
   if (tau <= t[0]!) return z[0]!;
   if (tau >= t[n - 1]!) return z[n - 1]!;

@@ -5,7 +5,9 @@ import { impliedVol, impliedVolBounds, ImpliedVolError } from './implied.ts';
 import type { OptionInputs } from './types.ts';
 
 const require = createRequire(import.meta.url);
-const ivPkg = require('implied-volatility') as { getImpliedVolatility: (c: number, s: number, k: number, t: number, r: number, cp: string) => number };
+const ivPkg = require('implied-volatility') as {
+  getImpliedVolatility: (c: number, s: number, k: number, t: number, r: number, cp: string) => number;
+};
 
 const base = { payoff: 'vanilla' as const, spot: 100, rate: 0.03, carry: 0.01 };
 
@@ -45,7 +47,15 @@ describe('impliedVol recovers the vol that made the price', () => {
     const rnd = (): number => (seed = (Math.imul(seed, 1103515245) + 12345) >>> 0) / 4294967296;
     for (let i = 0; i < 3000; i++) {
       const right = rnd() < 0.5 ? ('call' as const) : ('put' as const);
-      const p = { right, payoff: 'vanilla' as const, spot: 100, strike: 100 * Math.exp(4 * (rnd() - 0.5)), tau: Math.exp(-9 + 13 * rnd()), rate: 0.1 * (rnd() - 0.3), carry: 0.1 * (rnd() - 0.5) };
+      const p = {
+        right,
+        payoff: 'vanilla' as const,
+        spot: 100,
+        strike: 100 * Math.exp(4 * (rnd() - 0.5)),
+        tau: Math.exp(-9 + 13 * rnd()),
+        rate: 0.1 * (rnd() - 0.3),
+        carry: 0.1 * (rnd() - 0.5),
+      };
       const { lower, upper } = impliedVolBounds(p);
       const u = rnd();
       const w = u < 0.3 ? Math.pow(10, -300 * rnd()) : u < 0.6 ? 1 - Math.pow(10, -15 * rnd()) : rnd();
@@ -65,7 +75,15 @@ describe('impliedVol recovers the vol that made the price', () => {
 
   it('agrees with the npm implied-volatility package (which stops at the cent)', () => {
     for (const k of [80, 100, 120]) {
-      const p = { right: 'call' as const, payoff: 'vanilla' as const, spot: 100, strike: k, tau: 0.5, rate: 0.05, carry: 0.05 };
+      const p = {
+        right: 'call' as const,
+        payoff: 'vanilla' as const,
+        spot: 100,
+        strike: k,
+        tau: 0.5,
+        rate: 0.05,
+        carry: 0.05,
+      };
       const c = priceOption({ ...p, vol: 0.3 }).price;
       const theirs = ivPkg.getImpliedVolatility(c, 100, k, 0.5, 0.05, 'call');
       expect(Math.abs(impliedVol({ ...p, price: c }) - theirs)).toBeLessThan(1e-3);
@@ -74,7 +92,15 @@ describe('impliedVol recovers the vol that made the price', () => {
 });
 
 describe('impliedVol refuses what has no implied vol', () => {
-  const p = { right: 'call' as const, payoff: 'vanilla' as const, spot: 100, strike: 90, tau: 1, rate: 0.05, carry: 0.05 };
+  const p = {
+    right: 'call' as const,
+    payoff: 'vanilla' as const,
+    spot: 100,
+    strike: 90,
+    tau: 1,
+    rate: 0.05,
+    carry: 0.05,
+  };
   it('a price at or beyond the no-arbitrage bounds, naming them', () => {
     const { lower, upper } = impliedVolBounds(p);
     expect(lower).toBeCloseTo(100 - 90 * Math.exp(-0.05), 12);
@@ -92,7 +118,9 @@ describe('impliedVol refuses what has no implied vol', () => {
     }
   });
   it('digitals, with the reason', () => {
-    expect(() => impliedVol({ ...p, payoff: 'cash-digital', price: 0.5 })).toThrow(/vanilla options only.*not monotone in vol/);
+    expect(() => impliedVol({ ...p, payoff: 'cash-digital', price: 0.5 })).toThrow(
+      /vanilla options only.*not monotone in vol/,
+    );
     expect(() => impliedVol({ ...p, payoff: 'asset-digital', price: 50 })).toThrow(ImpliedVolError);
   });
   it('expired options and bad numbers', () => {

@@ -50,12 +50,16 @@ function fmt(x: number): string {
 export function impliedVolBounds(p: Omit<ImpliedVolInputs, 'price'>): { lower: number; upper: number } {
   const sd = p.spot * Math.exp((p.carry - p.rate) * p.tau);
   const kd = p.strike * Math.exp(-p.rate * p.tau);
-  return p.right === 'call' ? { lower: Math.max(sd - kd, 0), upper: sd } : { lower: Math.max(kd - sd, 0), upper: kd };
+  return p.right === 'call'
+    ? { lower: Math.max(sd - kd, 0), upper: sd }
+    : { lower: Math.max(kd - sd, 0), upper: kd };
 }
 
 function requireFinite(name: string, v: number, positive: boolean): void {
   if (typeof v !== 'number' || !Number.isFinite(v) || (positive && !(v > 0))) {
-    throw new ImpliedVolError(`implied vol: ${name} must be a finite number${positive ? ' > 0' : ''} (got ${String(v)})`);
+    throw new ImpliedVolError(
+      `implied vol: ${name} must be a finite number${positive ? ' > 0' : ''} (got ${String(v)})`,
+    );
   }
 }
 
@@ -66,19 +70,26 @@ export function impliedVol(p: ImpliedVolInputs): number {
       `implied vol is solved for vanilla options only (payoff ${String(p.payoff)}): a digital's price is not monotone in vol, so its implied vol is not unique`,
     );
   }
-  if (p.right !== 'call' && p.right !== 'put') throw new ImpliedVolError(`implied vol: right must be call or put (got ${String(p.right)})`);
+  if (p.right !== 'call' && p.right !== 'put')
+    throw new ImpliedVolError(`implied vol: right must be call or put (got ${String(p.right)})`);
   requireFinite('spot', p.spot, true);
   requireFinite('strike', p.strike, true);
   requireFinite('tau', p.tau, false);
   requireFinite('rate', p.rate, false);
   requireFinite('carry', p.carry, false);
   requireFinite('price', p.price, false);
-  if (!(p.tau > 0)) throw new ImpliedVolError(`implied vol: tau must be > 0, an expired option has no time value to invert (got ${p.tau})`);
+  if (!(p.tau > 0))
+    throw new ImpliedVolError(
+      `implied vol: tau must be > 0, an expired option has no time value to invert (got ${p.tau})`,
+    );
 
   const tau = p.tau;
   const sd = p.spot * Math.exp((p.carry - p.rate) * tau);
   const kd = p.strike * Math.exp(-p.rate * tau);
-  const { lower, upper } = p.right === 'call' ? { lower: Math.max(sd - kd, 0), upper: sd } : { lower: Math.max(kd - sd, 0), upper: kd };
+  const { lower, upper } =
+    p.right === 'call'
+      ? { lower: Math.max(sd - kd, 0), upper: sd }
+      : { lower: Math.max(kd - sd, 0), upper: kd };
   if (!(p.price > lower && p.price < upper)) {
     throw new ImpliedVolError(
       `price ${fmt(p.price)} is outside the no-arbitrage bounds (${fmt(lower)}, ${fmt(upper)}) of this ${p.right}: no vol reproduces it`,
@@ -135,5 +146,7 @@ export function impliedVol(p: ImpliedVolInputs): number {
     if (Math.abs(next - sigma) <= 1e-13 * next || (hi !== Infinity && hi - lo <= 4e-16 * hi)) return next;
     sigma = next;
   }
-  throw new ImpliedVolError(`implied vol did not converge in ${MAX_ITERATIONS} iterations (price ${fmt(p.price)}, bracket [${fmt(lo)}, ${fmt(hi)}])`);
+  throw new ImpliedVolError(
+    `implied vol did not converge in ${MAX_ITERATIONS} iterations (price ${fmt(p.price)}, bracket [${fmt(lo)}, ${fmt(hi)}])`,
+  );
 }

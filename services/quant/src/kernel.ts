@@ -73,7 +73,18 @@ export function valueRange(batch: OptionBatch, out: GreeksBatch, from: number, t
     if (!(tau > 0)) {
       // Expired: what the holder receives now; in the money is strict, so at the strike it pays nothing.
       const itm = phi * (s - k) > 0;
-      oPrice[i] = payoff === PAYOFF_VANILLA ? (itm ? phi * (s - k) : 0) : payoff === PAYOFF_CASH ? (itm ? cash : 0) : itm ? s : 0;
+      oPrice[i] =
+        payoff === PAYOFF_VANILLA
+          ? itm
+            ? phi * (s - k)
+            : 0
+          : payoff === PAYOFF_CASH
+            ? itm
+              ? cash
+              : 0
+            : itm
+              ? s
+              : 0;
       oDelta[i] = 0;
       oGamma[i] = 0;
       oVega[i] = 0;

@@ -11,7 +11,9 @@ describe('yearFraction: ACT/365 fixed in milliseconds', () => {
     expect(MS_PER_YEAR).toBe(31_536_000_000);
     expect(yearFraction(Date.UTC(2026, 0, 1), Date.UTC(2027, 0, 1))).toBe(1);
     expect(yearFraction(Date.UTC(2028, 0, 1), Date.UTC(2029, 0, 1))).toBe(366 / 365); // 2028 is a leap year
-    expect(yearFraction(Date.parse('2026-03-02T14:30:00.125Z'), Date.parse('2026-03-03T14:30:00.125Z'))).toBe(1 / 365);
+    expect(yearFraction(Date.parse('2026-03-02T14:30:00.125Z'), Date.parse('2026-03-03T14:30:00.125Z'))).toBe(
+      1 / 365,
+    );
     expect(yearFraction(Date.UTC(2026, 5, 1), Date.UTC(2026, 4, 31))).toBe(-1 / 365);
   });
 });
@@ -30,7 +32,9 @@ describe('zero curve: linear in rate, flat outside (the contract example curve)'
   it('discounts at exp(-r(t) t), 1 at t = 0', () => {
     expect(discountFactor(usd, 0)).toBe(1);
     expect(discountFactor(usd, 3)).toBeCloseTo(Math.exp(-(0.038 - 0.001 / 3) * 3), 15);
-    expect(discountFactor({ tenors: new Float64Array([1]), zeroRates: new Float64Array([0.05]) }, 2)).toBeCloseTo(Math.exp(-0.1), 15);
+    expect(
+      discountFactor({ tenors: new Float64Array([1]), zeroRates: new Float64Array([0.05]) }, 2),
+    ).toBeCloseTo(Math.exp(-0.1), 15);
   });
   it('refuses an empty or ragged curve', () => {
     expect(() => zeroRate({ tenors: [], zeroRates: [] }, 1)).toThrow(/at least one/);
@@ -75,7 +79,13 @@ describe('vol surface: linear in strike, total variance in time (the contract ex
   it('ignores pillars already in the past', () => {
     // Seen from 2026-04-01 the March pillar is past: everything uses the June smile flat.
     const later = Date.parse('2026-04-01T00:00:00Z');
-    const g = { ...grid, pillarTaus: [yearFraction(later, Date.parse('2026-03-20T20:00:00Z')), yearFraction(later, Date.parse('2026-06-19T20:00:00Z'))] };
+    const g = {
+      ...grid,
+      pillarTaus: [
+        yearFraction(later, Date.parse('2026-03-20T20:00:00Z')),
+        yearFraction(later, Date.parse('2026-06-19T20:00:00Z')),
+      ],
+    };
     expect(surfaceVol(g, 95, 0.01)).toBeCloseTo(0.2625, 15);
     expect(surfaceVol(g, 95, 1)).toBeCloseTo(0.2625, 15);
     // A pillar exactly at the valuation time is not in the future either.
@@ -85,10 +95,19 @@ describe('vol surface: linear in strike, total variance in time (the contract ex
   });
   it('a single expiry and strike is a flat surface', () => {
     const flat = { pillarTaus: [0.5], strikes: [100], vols: [[0.2]] };
-    for (const [k, t] of [[50, 0.01], [100, 0.5], [300, 10]] as const) expect(surfaceVol(flat, k, t)).toBe(0.2);
+    for (const [k, t] of [
+      [50, 0.01],
+      [100, 0.5],
+      [300, 10],
+    ] as const)
+      expect(surfaceVol(flat, k, t)).toBe(0.2);
   });
   it('refuses malformed grids with the reason', () => {
-    expect(() => surfaceVol({ pillarTaus: [], strikes: [100], vols: [] }, 100, 1)).toThrow(/at least one pillar/);
-    expect(() => surfaceVol({ pillarTaus: [0.5], strikes: [100, 110], vols: [[0.2]] }, 105, 0.5)).toThrow(/row 0 needs 2 vols/);
+    expect(() => surfaceVol({ pillarTaus: [], strikes: [100], vols: [] }, 100, 1)).toThrow(
+      /at least one pillar/,
+    );
+    expect(() => surfaceVol({ pillarTaus: [0.5], strikes: [100, 110], vols: [[0.2]] }, 105, 0.5)).toThrow(
+      /row 0 needs 2 vols/,
+    );
   });
 });

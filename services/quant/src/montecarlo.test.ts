@@ -55,7 +55,12 @@ describe('Monte Carlo under GBM (seeded xoshiro128** + Box-Muller)', () => {
       return [m, Math.sqrt((sq / PATHS - m * m) / PATHS)];
     };
     const base = { ...c, right: 'call' as const };
-    check(df * pQ, df * Math.sqrt((pQ * (1 - pQ)) / PATHS), priceOption({ ...base, payoff: 'cash-digital' }).price, 'cash-or-nothing call');
+    check(
+      df * pQ,
+      df * Math.sqrt((pQ * (1 - pQ)) / PATHS),
+      priceOption({ ...base, payoff: 'cash-digital' }).price,
+      'cash-or-nothing call',
+    );
     const [am, as] = meanStd(assetSum, assetSq);
     check(df * am, df * as, priceOption({ ...base, payoff: 'asset-digital' }).price, 'asset-or-nothing call');
     const [cm, cs] = meanStd(callSum, callSq);

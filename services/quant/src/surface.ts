@@ -31,7 +31,9 @@ function smileAt(strikes: number[], row: number[], k: number): number {
 function rowOf(g: VolGrid, i: number): number[] {
   const row = g.vols[i];
   if (!row || row.length !== g.strikes.length) {
-    throw new RangeError(`vol grid row ${i} needs ${g.strikes.length} vols (got ${row ? row.length : 'none'})`);
+    throw new RangeError(
+      `vol grid row ${i} needs ${g.strikes.length} vols (got ${row ? row.length : 'none'})`,
+    );
   }
   return row;
 }
@@ -45,9 +47,12 @@ export function surfaceVol(g: VolGrid, strike: number, tau: number): number {
   const taus = g.pillarTaus;
   const n = taus.length;
   if (n === 0 || g.strikes.length === 0) {
-    throw new RangeError(`vol grid needs at least one pillar and one strike (got ${n} pillars, ${g.strikes.length} strikes)`);
+    throw new RangeError(
+      `vol grid needs at least one pillar and one strike (got ${n} pillars, ${g.strikes.length} strikes)`,
+    );
   }
-  if (g.vols.length !== n) throw new RangeError(`vol grid needs one row per pillar (got ${g.vols.length} rows, ${n} pillars)`);
+  if (g.vols.length !== n)
+    throw new RangeError(`vol grid needs one row per pillar (got ${g.vols.length} rows, ${n} pillars)`);
   let first = 0; // first pillar still in the future
   while (first < n && !(taus[first]! > 0)) first++;
   if (first === n) return smileAt(g.strikes, rowOf(g, n - 1), strike);

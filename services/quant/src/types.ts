@@ -75,4 +75,7 @@ export interface GreeksBatch {
 }
 
 export const RIGHT_CODE = { call: 0, put: 1 } as const satisfies Record<Right, number>;
-export const PAYOFF_CODE = { vanilla: 0, 'cash-digital': 1, 'asset-digital': 2 } as const satisfies Record<Payoff, number>;
+export const PAYOFF_CODE = { vanilla: 0, 'cash-digital': 1, 'asset-digital': 2 } as const satisfies Record<
+  Payoff,
+  number
+>;

@@ -10,7 +10,10 @@ import { run } from './price.ts';
 
 const repoRoot = resolve(dirname(fileURLToPath(import.meta.url)), '../../../..');
 
-async function price(argv: string[], stdinText = ''): Promise<{ code: number; out: Record<string, unknown>[]; err: string }> {
+async function price(
+  argv: string[],
+  stdinText = '',
+): Promise<{ code: number; out: Record<string, unknown>[]; err: string }> {
   const stdin = new PassThrough();
   const stdout = new PassThrough();
   const stderr = new PassThrough();
@@ -20,21 +23,58 @@ async function price(argv: string[], stdinText = ''): Promise<{ code: number; ou
   stderr.on('data', (c: Buffer) => (err += c.toString()));
   stdin.end(stdinText);
   const code = await run(argv, { stdin, stdout, stderr });
-  return { code, out: out.split('\n').filter((l) => l !== '').map((l) => JSON.parse(l) as Record<string, unknown>), err };
+  return {
+    code,
+    out: out
+      .split('\n')
+      .filter((l) => l !== '')
+      .map((l) => JSON.parse(l) as Record<string, unknown>),
+    err,
+  };
 }
-const lines = (...xs: unknown[]): string => xs.map((x) => (typeof x === 'string' ? x : JSON.stringify(x))).join('\n') + '\n';
+const lines = (...xs: unknown[]): string =>
+  xs.map((x) => (typeof x === 'string' ? x : JSON.stringify(x))).join('\n') + '\n';
 
 describe('keelson price: valuations', () => {
   it('prices the Hull example (S=42 K=40 r=10% sigma=20% T=0.5: call 4.76, put 0.81) with every Greek', async () => {
-    const { code, out } = await price([], lines({ id: 'h1', right: 'call', spot: 42, strike: 40, years: 0.5, vol: 0.2, rate: 0.1 }, { id: 'h2', right: 'put', spot: 42, strike: 40, years: 0.5, vol: 0.2, rate: 0.1 }));
+    const { code, out } = await price(
+      [],
+      lines(
+        { id: 'h1', right: 'call', spot: 42, strike: 40, years: 0.5, vol: 0.2, rate: 0.1 },
+        { id: 'h2', right: 'put', spot: 42, strike: 40, years: 0.5, vol: 0.2, rate: 0.1 },
+      ),
+    );
     expect(code).toBe(0);
     expect(out).toHaveLength(2);
-    expect(Object.keys(out[0]!)).toEqual(['id', 'price', 'delta', 'gamma', 'vega', 'theta', 'rho', 'vanna', 'volga', 'charm']);
+    expect(Object.keys(out[0]!)).toEqual([
+      'id',
+      'price',
+      'delta',
+      'gamma',
+      'vega',
+      'theta',
+      'rho',
+      'vanna',
+      'volga',
+      'charm',
+    ]);
     expect(out[0]!.id).toBe('h1');
     expect(out[0]!.price as number).toBeCloseTo(4.76, 2);
     expect(out[1]!.price as number).toBeCloseTo(0.81, 2);
     // the command adds no arithmetic of its own
-    expect(out[0]).toEqual({ id: 'h1', ...priceOption({ right: 'call', payoff: 'vanilla', spot: 42, strike: 40, tau: 0.5, vol: 0.2, rate: 0.1, carry: 0.1 }) });
+    expect(out[0]).toEqual({
+      id: 'h1',
+      ...priceOption({
+        right: 'call',
+        payoff: 'vanilla',
+        spot: 42,
+        strike: 40,
+        tau: 0.5,
+        vol: 0.2,
+        rate: 0.1,
+        carry: 0.1,
+      }),
+    });
   });
 
   it('maps each underlyingKind to its carry (Haug 2007 examples, quoted from memory)', async () => {
@@ -42,15 +82,64 @@ describe('keelson price: valuations', () => {
       [],
       lines(
         // Merton 1973 with dividend yield: put 2.4648
-        { id: 'eq', right: 'put', spot: 100, strike: 95, years: 0.5, vol: 0.2, rate: 0.1, dividendYield: 0.05 },
+        {
+          id: 'eq',
+          right: 'put',
+          spot: 100,
+          strike: 95,
+          years: 0.5,
+          vol: 0.2,
+          rate: 0.1,
+          dividendYield: 0.05,
+        },
         // Garman-Kohlhagen: call 0.0291
-        { id: 'fx', right: 'call', underlyingKind: 'fx', spot: 1.56, strike: 1.6, years: 0.5, vol: 0.12, rate: 0.06, foreignRate: 0.08 },
+        {
+          id: 'fx',
+          right: 'call',
+          underlyingKind: 'fx',
+          spot: 1.56,
+          strike: 1.6,
+          years: 0.5,
+          vol: 0.12,
+          rate: 0.06,
+          foreignRate: 0.08,
+        },
         // Black-76: call 1.7011
-        { id: 'fut', right: 'call', underlyingKind: 'future', spot: 19, strike: 19, years: 0.75, vol: 0.28, rate: 0.1 },
+        {
+          id: 'fut',
+          right: 'call',
+          underlyingKind: 'future',
+          spot: 19,
+          strike: 19,
+          years: 0.75,
+          vol: 0.28,
+          rate: 0.1,
+        },
         // Reiner-Rubinstein cash-or-nothing put with b = 0: 2.6710 (a future: carry 0)
-        { id: 'cash', right: 'put', payoff: 'cash-digital', underlyingKind: 'future', spot: 100, strike: 80, years: 0.75, vol: 0.35, rate: 0.06, cashAmount: 10 },
+        {
+          id: 'cash',
+          right: 'put',
+          payoff: 'cash-digital',
+          underlyingKind: 'future',
+          spot: 100,
+          strike: 80,
+          years: 0.75,
+          vol: 0.35,
+          rate: 0.06,
+          cashAmount: 10,
+        },
         // asset-or-nothing put, q = 5%: 20.2069
-        { id: 'asset', right: 'put', payoff: 'asset-digital', spot: 70, strike: 65, years: 0.5, vol: 0.27, rate: 0.07, dividendYield: 0.05 },
+        {
+          id: 'asset',
+          right: 'put',
+          payoff: 'asset-digital',
+          spot: 70,
+          strike: 65,
+          years: 0.5,
+          vol: 0.27,
+          rate: 0.07,
+          dividendYield: 0.05,
+        },
       ),
     );
     expect(code).toBe(0);
@@ -66,8 +155,29 @@ describe('keelson price: valuations', () => {
 
   it('solves the implied vol from a premium and prices at it', async () => {
     const vol = 0.237;
-    const g = priceOption({ right: 'call', payoff: 'vanilla', spot: 100, strike: 110, tau: 1.25, vol, rate: 0.04, carry: 0.04 - 0.015 });
-    const { code, out } = await price([], lines({ id: { desk: 'X' }, right: 'call', spot: 100, strike: 110, years: 1.25, premium: g.price, rate: 0.04, dividendYield: 0.015 }));
+    const g = priceOption({
+      right: 'call',
+      payoff: 'vanilla',
+      spot: 100,
+      strike: 110,
+      tau: 1.25,
+      vol,
+      rate: 0.04,
+      carry: 0.04 - 0.015,
+    });
+    const { code, out } = await price(
+      [],
+      lines({
+        id: { desk: 'X' },
+        right: 'call',
+        spot: 100,
+        strike: 110,
+        years: 1.25,
+        premium: g.price,
+        rate: 0.04,
+        dividendYield: 0.015,
+      }),
+    );
     expect(code).toBe(0);
     expect(out[0]!.id).toEqual({ desk: 'X' });
     expect(Math.abs((out[0]!.impliedVol as number) - vol)).toBeLessThan(1e-10);
@@ -75,8 +185,22 @@ describe('keelson price: valuations', () => {
   });
 
   it('an expired option is worth its intrinsic value with zero Greeks', async () => {
-    const { out } = await price([], lines({ right: 'call', spot: 105, strike: 100, years: 0, vol: 0.2, rate: 0.05 }));
-    expect(out[0]).toEqual({ id: null, price: 5, delta: 0, gamma: 0, vega: 0, theta: 0, rho: 0, vanna: 0, volga: 0, charm: 0 });
+    const { out } = await price(
+      [],
+      lines({ right: 'call', spot: 105, strike: 100, years: 0, vol: 0.2, rate: 0.05 }),
+    );
+    expect(out[0]).toEqual({
+      id: null,
+      price: 5,
+      delta: 0,
+      gamma: 0,
+      vega: 0,
+      theta: 0,
+      rho: 0,
+      vanna: 0,
+      volga: 0,
+      charm: 0,
+    });
   });
 });
 
@@ -95,8 +219,16 @@ describe('keelson price: rejected lines name the field and the run goes on', () 
     [{ ...good, rate: 3 }, null, /^rate must be in \[-1, 1\]/],
     [{ ...good, premium: 5 }, null, /^give either vol or premium, not both$/],
     [{ ...good, vol: undefined }, null, /^vol or premium is required$/],
-    [{ ...good, vol: undefined, premium: 150 }, null, /^premium 150 is outside the no-arbitrage bounds \(2\.95\d*, 100\) of this call/],
-    [{ ...good, vol: undefined, premium: 0.1, payoff: 'cash-digital' }, null, /^premium: implied vol is solved for vanilla options only/],
+    [
+      { ...good, vol: undefined, premium: 150 },
+      null,
+      /^premium 150 is outside the no-arbitrage bounds \(2\.95\d*, 100\) of this call/,
+    ],
+    [
+      { ...good, vol: undefined, premium: 0.1, payoff: 'cash-digital' },
+      null,
+      /^premium: implied vol is solved for vanilla options only/,
+    ],
     [{ ...good, vol: undefined, premium: 1, years: 0 }, null, /^premium: an expired option/],
     [{ ...good, underlyingKind: 'fx', dividendYield: 0.01 }, null, /^dividendYield applies to equity only/],
     [{ ...good, foreignRate: 0.01 }, null, /^foreignRate applies to fx only/],
@@ -127,8 +259,17 @@ describe('keelson price: arguments, files and exit codes', () => {
   const dir = mkdtempSync(join(tmpdir(), 'keelson-price-'));
   const a = join(dir, 'a.jsonl');
   const b = join(dir, 'b.jsonl');
-  writeFileSync(a, lines({ id: 'a1', right: 'call', spot: 100, strike: 100, years: 1, vol: 0.2, rate: 0.03 }));
-  writeFileSync(b, lines({ id: 'b1', right: 'put', spot: 100, strike: 100, years: 1, vol: 0.2, rate: 0.03 }, { id: 'b2', right: 'put' }));
+  writeFileSync(
+    a,
+    lines({ id: 'a1', right: 'call', spot: 100, strike: 100, years: 1, vol: 0.2, rate: 0.03 }),
+  );
+  writeFileSync(
+    b,
+    lines(
+      { id: 'b1', right: 'put', spot: 100, strike: 100, years: 1, vol: 0.2, rate: 0.03 },
+      { id: 'b2', right: 'put' },
+    ),
+  );
 
   it('reads file arguments in order; with several inputs a rejection names its file', async () => {
     const { code, out } = await price([a, b]);
@@ -156,7 +297,17 @@ describe('keelson price: arguments, files and exit codes', () => {
     let text = '';
     stdout.on('data', (c: Buffer) => (text += c.toString()));
     expect(await run(['--help'], { stdin: new PassThrough(), stdout, stderr: new PassThrough() })).toBe(0);
-    for (const word of ['underlyingKind', 'dividendYield', 'foreignRate', 'cashAmount', 'premium', 'per vol point', 'per calendar day', 'x 1e-4', 'exit status']) {
+    for (const word of [
+      'underlyingKind',
+      'dividendYield',
+      'foreignRate',
+      'cashAmount',
+      'premium',
+      'per vol point',
+      'per calendar day',
+      'x 1e-4',
+      'exit status',
+    ]) {
       expect(text).toContain(word);
     }
   });
@@ -167,10 +318,15 @@ describe('keelson price: arguments, files and exit codes', () => {
         if (err && typeof err.code !== 'number') rej(err);
         else res({ stdout: so, code: err ? (err.code as number) : 0 });
       });
-      child.stdin!.end(lines({ id: 1, right: 'call', spot: 42, strike: 40, years: 0.5, vol: 0.2, rate: 0.1 }, 'oops'));
+      child.stdin!.end(
+        lines({ id: 1, right: 'call', spot: 42, strike: 40, years: 0.5, vol: 0.2, rate: 0.1 }, 'oops'),
+      );
     });
     expect(code).toBe(2);
-    const [first, second] = stdout.trim().split('\n').map((l) => JSON.parse(l) as Record<string, unknown>);
+    const [first, second] = stdout
+      .trim()
+      .split('\n')
+      .map((l) => JSON.parse(l) as Record<string, unknown>);
     expect(first!.price as number).toBeCloseTo(4.76, 2);
     expect(second).toMatchObject({ id: null, line: 2 });
   }, 60_000);

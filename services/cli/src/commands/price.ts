@@ -56,7 +56,10 @@ const RATE_LIMIT = 1; // |rate| <= 100%: beyond that exp(-r t) over decades leav
 
 function numberField(name: string) {
   return z.number({
-    error: (iss) => (iss.input === undefined ? `${name} is required` : `${name} must be a finite number (got ${show(iss.input)})`),
+    error: (iss) =>
+      iss.input === undefined
+        ? `${name} is required`
+        : `${name} must be a finite number (got ${show(iss.input)})`,
   });
 }
 
@@ -89,7 +92,12 @@ const LineSchema = z.strictObject(
       .gt(0, { error: (iss) => `cashAmount must be > 0 (got ${show(iss.input)})` })
       .optional(),
   },
-  { error: (iss) => (iss.code === 'unrecognized_keys' ? `unknown field ${iss.keys.map((k) => `'${k}'`).join(', ')}` : undefined) },
+  {
+    error: (iss) =>
+      iss.code === 'unrecognized_keys'
+        ? `unknown field ${iss.keys.map((k) => `'${k}'`).join(', ')}`
+        : undefined,
+  },
 );
 type Line = z.infer<typeof LineSchema>;
 
@@ -103,7 +111,8 @@ class LineError extends Error {}
 
 /** The cross-field rules zod's per-field view cannot state. */
 function checkCombination(l: Line): void {
-  if (l.vol !== undefined && l.premium !== undefined) throw new LineError('give either vol or premium, not both');
+  if (l.vol !== undefined && l.premium !== undefined)
+    throw new LineError('give either vol or premium, not both');
   if (l.vol === undefined && l.premium === undefined) throw new LineError('vol or premium is required');
   if (l.dividendYield !== undefined && l.underlyingKind !== 'equity') {
     throw new LineError(`dividendYield applies to equity only (underlyingKind is ${l.underlyingKind})`);
@@ -111,14 +120,20 @@ function checkCombination(l: Line): void {
   if (l.foreignRate !== undefined && l.underlyingKind !== 'fx') {
     throw new LineError(`foreignRate applies to fx only (underlyingKind is ${l.underlyingKind})`);
   }
-  if (l.cashAmount !== undefined && l.payoff !== 'cash-digital') throw new LineError(`cashAmount applies to cash-digital only (payoff is ${l.payoff})`);
+  if (l.cashAmount !== undefined && l.payoff !== 'cash-digital')
+    throw new LineError(`cashAmount applies to cash-digital only (payoff is ${l.payoff})`);
 }
 
 type Priced = { id: unknown } & Greeks & { impliedVol?: number };
 
 function value(l: Line): Priced {
   checkCombination(l);
-  const carry = l.underlyingKind === 'equity' ? l.rate - (l.dividendYield ?? 0) : l.underlyingKind === 'fx' ? l.rate - (l.foreignRate ?? 0) : 0;
+  const carry =
+    l.underlyingKind === 'equity'
+      ? l.rate - (l.dividendYield ?? 0)
+      : l.underlyingKind === 'fx'
+        ? l.rate - (l.foreignRate ?? 0)
+        : 0;
   const base: Omit<OptionInputs, 'vol'> = {
     right: l.right,
     payoff: l.payoff,
@@ -140,7 +155,9 @@ function value(l: Line): Priced {
     } catch (e) {
       if (!(e instanceof ImpliedVolError)) throw e;
       if (e.lower !== undefined && e.upper !== undefined) {
-        throw new LineError(`premium ${premium} is outside the no-arbitrage bounds (${round(e.lower)}, ${round(e.upper)}) of this ${l.right}: no vol reproduces it`);
+        throw new LineError(
+          `premium ${premium} is outside the no-arbitrage bounds (${round(e.lower)}, ${round(e.upper)}) of this ${l.right}: no vol reproduces it`,
+        );
       }
       throw new LineError(`premium: ${e.message}`);
     }
@@ -161,7 +178,8 @@ function value(l: Line): Priced {
   };
   if (solved !== undefined) out.impliedVol = solved;
   for (const [k, v] of Object.entries(out)) {
-    if (typeof v === 'number' && !Number.isFinite(v)) throw new LineError(`${k} came out non-finite for these inputs; refusing to print it`);
+    if (typeof v === 'number' && !Number.isFinite(v))
+      throw new LineError(`${k} came out non-finite for these inputs; refusing to print it`);
   }
   return out;
 }
@@ -179,7 +197,11 @@ export function priceLine(text: string, lineNo: number): { ok: boolean; json: st
     return reject(null, lineNo, `line is not valid JSON: ${(e as Error).message}`);
   }
   if (typeof raw !== 'object' || raw === null || Array.isArray(raw)) {
-    return reject(null, lineNo, `line must be a JSON object (got ${Array.isArray(raw) ? 'an array' : show(raw)})`);
+    return reject(
+      null,
+      lineNo,
+      `line must be a JSON object (got ${Array.isArray(raw) ? 'an array' : show(raw)})`,
+    );
   }
   const id = (raw as { id?: unknown }).id ?? null;
   const parsed = LineSchema.safeParse(raw);
@@ -229,7 +251,9 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
     try {
       await access(f, constants.R_OK);
     } catch (e) {
-      io.stderr.write(`keelson price: cannot read ${f}: ${(e as NodeJS.ErrnoException).code ?? (e as Error).message}\n`);
+      io.stderr.write(
+        `keelson price: cannot read ${f}: ${(e as NodeJS.ErrnoException).code ?? (e as Error).message}\n`,
+      );
       return 1;
     }
     sources.push({ name: f, open: () => createReadStream(f, { encoding: 'utf8' }) });
@@ -251,7 +275,9 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
         await write(io.stdout, `${json}\n`);
       }
     } catch (e) {
-      io.stderr.write(`keelson price: reading ${src.name === '-' ? 'stdin' : src.name} failed after line ${lineNo}: ${(e as Error).message}\n`);
+      io.stderr.write(
+        `keelson price: reading ${src.name === '-' ? 'stdin' : src.name} failed after line ${lineNo}: ${(e as Error).message}\n`,
+      );
       return 1;
     }
   }
