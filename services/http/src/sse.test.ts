@@ -1,5 +1,6 @@
 import { EventEmitter } from 'node:events';
 import { createServer, type IncomingMessage, type ServerResponse } from 'node:http';
+import { connect as tcpConnect } from 'node:net';
 import type { AddressInfo } from 'node:net';
 import { afterEach, describe, expect, it, vi } from 'vitest';
 import type { AlertMsg, ExposureMsg, StaleFeedMsg } from '@keelson/shared-types';
@@ -329,6 +330,49 @@ describe('SseHub', () => {
     res.destroy();
     hub.publishExposure(exposure('firm', 1));
     expect(hub.stats().clients).toBe(0);
+  });
+
+  it('stalls on a real socket that stops reading, buffers nothing but the latest per node, and catches up', async () => {
+    const hub = makeHub();
+    const server = createServer((req, res) => hub.handle(req, res));
+    await new Promise<void>((r) => server.listen(0, '127.0.0.1', r));
+    const { port } = server.address() as AddressInfo;
+    const sock = tcpConnect(port, '127.0.0.1');
+    let received = '';
+    sock.on('data', (d: Buffer) => (received += d.toString()));
+    try {
+      sock.write('GET /events HTTP/1.1\r\nHost: x\r\n\r\n');
+      await expect.poll(() => received.includes('event: state')).toBe(true);
+      sock.pause(); // the browser tab stops reading
+      const big = 'x'.repeat(2_000);
+      let i = 0;
+      // Fill the socket and the kernel buffers until the hub sees back-pressure.
+      while (hub.stats().stalls === 0 && i < 100_000) {
+        for (let n = 0; n < 50; n++)
+          hub.publishExposure({
+            ...exposure(`desk=D${n}`, ++i),
+            currency: 'USD',
+            nodeKey: `desk=D${n}`,
+            asOf: big,
+          } as ExposureMsg);
+        hub.flushAll();
+        await new Promise((r) => setImmediate(r));
+      }
+      expect(hub.stats().stalls).toBe(1);
+      const before = hub.stats().coalesced;
+      for (let k = 0; k < 200; k++)
+        for (let n = 0; n < 50; n++) hub.publishExposure(exposure(`desk=D${n}`, ++i));
+      hub.flushAll();
+      // After the first 50 (one per node) every publish replaced a pending value: the backlog is
+      // 50 nodes, not 10 000 messages.
+      expect(hub.stats().coalesced - before).toBe(10_000 - 50);
+      sock.resume();
+      await expect.poll(() => received.includes(`"pv":${i}`), { timeout: 10_000 }).toBe(true);
+    } finally {
+      sock.destroy();
+      hub.close();
+      await new Promise((r) => server.close(r));
+    }
   });
 
   it('streams over a real node:http connection', async () => {
