@@ -565,6 +565,12 @@ interface LatencyResult {
   offered: number;
   revalsPerSec: number;
   keptUp: boolean;
+  /** Process CPU seconds per wall second (driver included): how much of a core the phase used. */
+  cpuShare: number;
+  /** Ticks through the pipeline per CPU second: what one dedicated core would absorb. */
+  ticksPerCpuSecond: number;
+  /** Pricings (instrument or position revaluations) per tick received, conflated ticks included. */
+  pricingsPerTick: number;
 }
 
 async function latencyAt(
@@ -585,10 +591,14 @@ async function latencyAt(
     p.runner.latency.reset();
   }
   const r0 = revals();
+  const s0 = p.runner.stats().spots;
   const t0 = performance.now();
+  const c0 = process.cpuUsage();
   const { offered, target } = await offer(p.bus, rate, LATENCY_SECONDS, rnd, prices);
   const drainMs = await drainWithin(p.bus, capMs);
   await p.runner.flushNow();
+  const cpu = process.cpuUsage(c0);
+  const cpuSeconds = (cpu.user + cpu.system) / 1e6;
   const seconds = (performance.now() - t0) / 1000;
   const revalsPerSec = (revals() - r0) / seconds;
   const [p50, p99] = p.runner.latency.percentiles([0.5, 0.99]);
@@ -601,6 +611,9 @@ async function latencyAt(
     offered,
     revalsPerSec,
     keptUp: offered >= 0.97 * target && drainMs <= 250,
+    cpuShare: cpuSeconds / seconds,
+    ticksPerCpuSecond: (p.runner.stats().spots - s0) / cpuSeconds,
+    pricingsPerTick: (revals() - r0) / Math.max(1, p.runner.stats().spots - s0),
   };
 }
 
@@ -643,11 +656,11 @@ async function main(): Promise<void> {
   const incRevals = () => engine.stats().revaluations;
   const inc100 = await latencyAt(engine, incRevals, 10_000, 100);
   process.stdout.write(
-    `  at 10 000 ticks/s, interval 100 ms: p50 ${fmtMs(inc100.p50)} p99 ${fmtMs(inc100.p99)}, ${fmt(inc100.revalsPerSec)} revaluations/s, ${inc100.keptUp ? 'keeps up' : 'falls behind'}\n`,
+    `  at 10 000 ticks/s, interval 100 ms: p50 ${fmtMs(inc100.p50)} p99 ${fmtMs(inc100.p99)}, ${fmt(inc100.revalsPerSec)} revaluations/s, ${inc100.keptUp ? 'keeps up' : 'falls behind'}; ${(100 * inc100.cpuShare).toFixed(0)}% of a core, ${fmt(inc100.ticksPerCpuSecond)} ticks per CPU second\n`,
   );
   const inc0 = await latencyAt(engine, incRevals, 10_000, 0);
   process.stdout.write(
-    `  at 10 000 ticks/s, every batch:     p50 ${fmtMs(inc0.p50)} p99 ${fmtMs(inc0.p99)}, ${fmt(inc0.revalsPerSec)} revaluations/s, ${inc0.keptUp ? 'keeps up' : 'falls behind'}\n`,
+    `  at 10 000 ticks/s, every batch:     p50 ${fmtMs(inc0.p50)} p99 ${fmtMs(inc0.p99)}, ${fmt(inc0.revalsPerSec)} revaluations/s, ${inc0.keptUp ? 'keeps up' : 'falls behind'}; ${(100 * inc0.cpuShare).toFixed(0)}% of a core, ${fmt(inc0.ticksPerCpuSecond)} ticks per CPU second\n`,
   );
 
   // ---- naive engine ---------------------------------------------------------------------------
@@ -680,10 +693,11 @@ async function main(): Promise<void> {
     warmUp: false,
   });
   process.stdout.write(
-    `  at 10 000 ticks/s, interval 100 ms: p50 ${fmtMs(naiveLat.p50)} p99 ${fmtMs(naiveLat.p99)} over the ${fmt(naiveLat.published)} of ${fmt(naiveLat.offered)} ticks it published, ${fmt(naiveLat.revalsPerSec)} position repricings/s, ${naiveLat.keptUp ? 'keeps up' : 'falls behind'}\n`,
+    `  at 10 000 ticks/s, interval 100 ms: p50 ${fmtMs(naiveLat.p50)} p99 ${fmtMs(naiveLat.p99)} over the ${fmt(naiveLat.published)} of ${fmt(naiveLat.offered)} ticks it published, ${fmt(naiveLat.revalsPerSec)} position repricings/s, ${naiveLat.keptUp ? 'keeps up' : 'falls behind'}; ${fmt(naiveLat.ticksPerCpuSecond, 1)} ticks per CPU second\n`,
   );
 
   // ---- side by side --------------------------------------------------------------------------
+  // `advantage`: how many times better the incremental engine does on that row (below 1x: worse).
   const rows: [string, string, string, string][] = [
     ['highest sustained ticks/s (tested steps)', fmt(incBest), fmt(naiveBest), ratio(incBest, naiveBest)],
     [
@@ -700,23 +714,35 @@ async function main(): Promise<void> {
     ],
     ['p99 tick-to-publish @10k/s, every batch', fmtMs(inc0.p99), '-', '-'],
     [
+      'ticks per CPU second @10k/s offered',
+      fmt(inc100.ticksPerCpuSecond),
+      fmt(naiveLat.ticksPerCpuSecond, 1),
+      ratio(inc100.ticksPerCpuSecond, naiveLat.ticksPerCpuSecond),
+    ],
+    [
       'pricings/s @10k/s (instruments | positions)',
       fmt(inc100.revalsPerSec),
       fmt(naiveLat.revalsPerSec),
-      ratio(naiveLat.revalsPerSec, inc100.revalsPerSec),
+      '-',
+    ],
+    [
+      'pricings per tick @10k/s',
+      fmt(inc100.pricingsPerTick, 1),
+      fmt(naiveLat.pricingsPerTick),
+      ratio(naiveLat.pricingsPerTick, inc100.pricingsPerTick),
     ],
     [
       'heap + array buffers per position (bytes)',
       fmt(incHeapPerPos),
       fmt(naiveHeapPerPos),
-      ratio(incHeapPerPos, naiveHeapPerPos),
+      ratio(naiveHeapPerPos, incHeapPerPos),
     ],
   ];
   process.stdout.write(
-    `\n${'figure'.padEnd(46)}${'incremental'.padStart(16)}${'naive'.padStart(18)}${'ratio'.padStart(10)}\n`,
+    `\n${'figure'.padEnd(46)}${'incremental'.padStart(16)}${'naive'.padStart(18)}${'advantage'.padStart(11)}\n`,
   );
   for (const [a, b, c, d] of rows)
-    process.stdout.write(`${a.padEnd(46)}${b.padStart(16)}${c.padStart(18)}${d.padStart(10)}\n`);
+    process.stdout.write(`${a.padEnd(46)}${b.padStart(16)}${c.padStart(18)}${d.padStart(11)}\n`);
   const meets10k = inc0.keptUp && inc100.keptUp;
   process.stdout.write(
     `\ntargets: keeps up with 10 000 ticks/s: ${meets10k ? 'yes' : 'NO'}; p99 <= 50 ms: ${inc0.p99 <= 50 ? 'yes' : 'NO'} publishing every batch, ` +
