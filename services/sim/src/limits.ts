@@ -171,11 +171,30 @@ export function estimateUtilizations(
   limits: readonly LimitMsg[],
   nowMs: number,
 ): Map<string, number> {
-  const contributions = [...trades].map((t) => ({ t, c: contribution(market, t, nowMs) }));
+  // Index the positions by the dimension a limit names first, so each limit visits only its own.
+  const all: { t: TradeBookingMsg; c: Contribution }[] = [];
+  const by = new Map<string, { t: TradeBookingMsg; c: Contribution }[]>();
+  const push = (key: string, item: { t: TradeBookingMsg; c: Contribution }) => {
+    const list = by.get(key);
+    if (list) list.push(item);
+    else by.set(key, [item]);
+  };
+  for (const t of trades) {
+    const item = { t, c: contribution(market, t, nowMs) };
+    all.push(item);
+    push(`u:${t.underlying}`, item);
+    push(`d:${t.desk}`, item);
+  }
   const out = new Map<string, number>();
   for (const l of limits) {
+    const candidates =
+      l.scope.underlying !== undefined
+        ? (by.get(`u:${l.scope.underlying}`) ?? [])
+        : l.scope.desk !== undefined
+          ? (by.get(`d:${l.scope.desk}`) ?? [])
+          : all;
     let v = 0;
-    for (const { t, c } of contributions) {
+    for (const { t, c } of candidates) {
       if (!inScope(l.scope, t, nowMs)) continue;
       switch (l.metric) {
         case 'delta':

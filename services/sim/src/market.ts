@@ -104,6 +104,8 @@ export class Market {
   readonly surfaceRefLogVol: Float64Array;
   readonly strikes: number[][];
   readonly expiries: number[];
+  /** the pillar expiries as contract timestamps, formatted once (surfaces repeat them) */
+  readonly expiryIsos: readonly string[];
   lastDiffusionMs: number;
   /** standardized diffusion shocks of the last step, kept for the statistics tests */
   readonly lastShocks: Float64Array;
@@ -145,6 +147,7 @@ export class Market {
       ]),
     );
     this.expiries = pillarExpiries(startMs);
+    this.expiryIsos = this.expiries.map((e) => new Date(e).toISOString());
     this.strikes = universe.map((u) => strikeGrid(u));
     this.lastDiffusionMs = startMs;
     universe.forEach((_, i) => {
@@ -256,16 +259,27 @@ export class Market {
 
   /** Model vol of name i at strike K and time to expiry tau, around reference spot refSpot. */
   modelVol(i: number, strike: number, tau: number, refSpot: number): number {
+    return this.smileAt(i, tau, refSpot)(strike);
+  }
+
+  /**
+   * The smile of one expiry as a function of strike: ATM level, forward and scale are computed
+   * once per expiry, since a surface asks for many strikes at each.
+   */
+  private smileAt(i: number, tau: number, refSpot: number): (strike: number) => number {
     const u = this.universe[i] as SimUnderlying;
     const t = Math.max(tau, 1 / 365);
     const level = Math.exp(this.logVolLevel[i] ?? 0);
     const atm = level * (u.vol + u.shortVolPremium * Math.exp(-t / 0.25));
     const fwd = refSpot * Math.exp(this.carry(u) * t);
-    const raw = Math.log(strike / fwd) / Math.sqrt(Math.max(t, 1 / 52));
-    // Saturate the wings so that far strikes on short expiries stay plausible.
-    const x = 2.5 * Math.tanh(raw / 2.5);
-    const v = atm * (1 + u.skew * x + u.smile * x * x);
-    return Math.min(Math.max(v, 0.03), 3);
+    const scale = 1 / Math.sqrt(Math.max(t, 1 / 52));
+    return (strike) => {
+      const raw = Math.log(strike / fwd) * scale;
+      // Saturate the wings so that far strikes on short expiries stay plausible.
+      const x = 2.5 * Math.tanh(raw / 2.5);
+      const v = atm * (1 + u.skew * x + u.smile * x * x);
+      return Math.min(Math.max(v, 0.03), 3);
+    };
   }
 
   /** The reference spot a surface is built around: fixed for sticky-strike, current otherwise. */
@@ -278,8 +292,8 @@ export class Market {
     const ref = this.referenceSpot(i);
     const strikes = this.strikes[i] ?? [];
     return this.expiries.map((e) => {
-      const tau = (e - nowMs) / MS_PER_YEAR;
-      return strikes.map((k) => round(this.modelVol(i, k, tau, ref), 4));
+      const smile = this.smileAt(i, (e - nowMs) / MS_PER_YEAR, ref);
+      return strikes.map((k) => round(smile(k), 4));
     });
   }
 

@@ -383,13 +383,13 @@ export class MarketSim {
     return { type: 'spot', underlying: u.name, price: Number(this.market.spot(i).toPrecision(8)), ts };
   }
 
-  private surfaceMsg(i: number, nowMs: number): VolSurfaceMsg {
+  private surfaceMsg(i: number, nowMs: number, ts = formatTs(nowMs)): VolSurfaceMsg {
     const u = this.universeList[i] as SimUnderlying;
     const msg: VolSurfaceMsg = {
       type: 'vol-surface',
       underlying: u.name,
-      ts: formatTs(nowMs),
-      expiries: this.market.expiries.map(formatTs),
+      ts,
+      expiries: [...this.market.expiryIsos],
       strikes: [...(this.market.strikes[i] ?? [])],
       vols: this.market.surfaceVols(i, nowMs),
     };
@@ -412,7 +412,7 @@ export class MarketSim {
         out.push(this.spotMsg(i, ts));
         this.lastTickMs[i] = t;
       }
-      if (this.market.surfaceDue(i)) out.push(this.surfaceMsg(i, t));
+      if (this.market.surfaceDue(i)) out.push(this.surfaceMsg(i, t, ts));
     }
   }
 
