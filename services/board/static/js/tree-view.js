@@ -94,6 +94,8 @@ export class TreeView {
     const cells = COLUMNS.map((c, i) => {
       const cell = el('div', `cell c-${c.id}`, { role: 'gridcell', 'aria-colindex': String(i + 1) });
       cell.lastText = '';
+      // Figures change by rewriting one text node's data: no nodes created or dropped per update.
+      if (i > 0) cell.append((cell.text = document.createTextNode('')));
       cell.moveAt = 0;
       cell.flashUntil = 0;
       row.append(cell);
@@ -188,7 +190,7 @@ export class TreeView {
       const cell = cells[m + 1];
       const text = msg ? compact(msg[metric]) : '';
       if (text !== cell.lastText) {
-        cell.textContent = text;
+        cell.text.data = text;
         cell.lastText = text;
       }
       const at = entry.moveAt[m];
@@ -206,7 +208,7 @@ export class TreeView {
     const pos = cells[10];
     const posText = msg ? String(msg.positions) : '';
     if (pos.lastText !== posText) {
-      pos.textContent = posText;
+      pos.text.data = posText;
       pos.lastText = posText;
     }
     const status = cells[11];
@@ -230,7 +232,7 @@ export class TreeView {
       statusTitle = titles.join('; ');
     }
     if (status.lastText !== statusText) {
-      status.textContent = statusText;
+      status.text.data = statusText;
       status.lastText = statusText;
       status.title = statusTitle;
       slot.row.classList.toggle('is-stale', Boolean(msg?.stale));
