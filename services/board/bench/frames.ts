@@ -205,8 +205,9 @@ export async function runFrameBench(
   }
 }
 
-if (import.meta.url === `file://${process.argv[1]}` || process.argv[1]?.endsWith('frames.ts')) {
-  if (!chromiumAvailability().available) process.exit(0);
+/** Runs the benchmark and prints its table; what `npm run bench` calls through tests/bench. */
+export async function printFrameBench(): Promise<void> {
+  if (!chromiumAvailability().available) return;
   const seconds = arg('seconds', 10);
   const r = await runFrameBench({ seconds, underlyingsPerBook: arg('nodes-per-book', 46) });
   const f = (v: number): string => v.toFixed(1).padStart(8);
@@ -232,3 +233,5 @@ if (import.meta.url === `file://${process.argv[1]}` || process.argv[1]?.endsWith
         .join(' ')} on ${cpus().length} CPUs\n`,
   );
 }
+
+if (process.argv[1]?.endsWith('frames.ts')) await printFrameBench();
