@@ -1,1 +1,3 @@
-export {};
+export * from './aggregator.ts';
+export { runKafkaPipeline } from './kafka-pipeline.ts';
+export type { PipelineIo } from './kafka-pipeline.ts';

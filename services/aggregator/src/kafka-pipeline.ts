@@ -1,0 +1,741 @@
+// `keelson run --brokers ...`: the risk pipeline on Kafka, in one of three roles.
+//
+//  all        one engine over every input partition, publishing exposures and alerts itself (one
+//             instance per group: it checks that it owns every partition and is not ready if not);
+//  engine     scale-out: one engine per owned input partition (keyed inputs are co-partitioned by
+//             underlying), each publishing its partial node sums to `partials`, keyed nodeKey|partition
+//             and partitioned by nodeKey; stale-feed events and dead letters go out directly;
+//  aggregate  sums the latest partial of every source partition per node, publishes the exposures
+//             and checks the limits.
+//
+// Every consumer rebuilds on assignment (KafkaBus `rebuild`): it reads its partitions again from
+// the start (trades in full, market data compacted to the latest per key), publishes nothing from
+// what it had already handled, and goes live only once all its partitions and the whole curves and
+// limits topics are read. Offsets are committed after the outputs a batch caused are acknowledged.
+import { parseArgs } from 'node:util';
+import { randomBytes } from 'node:crypto';
+import { RiskEngine, WallClock } from '@keelson/engine';
+import type { NodePartial } from '@keelson/engine';
+import { KafkaBus } from '@keelson/bus';
+import type { BatchContext, BusRecord, KafkaBusLogger } from '@keelson/bus';
+import { EngineRunner, AlertLog, createLogger, originOf, planBatch } from '@keelson/runtime';
+import type { Published, RunnerEngine } from '@keelson/runtime';
+import { KeelsonMetrics, SseHub, startHttpServer } from '@keelson/http';
+import type { ReadinessCheck, RunningHttpServer } from '@keelson/http';
+import { TOPICS } from '@keelson/shared-types';
+import type { AlertMsg, ExposureMsg, RejectedMsg, StaleFeedMsg } from '@keelson/shared-types';
+import { PartialsAggregator, decodePartial, partialKey } from './aggregator.ts';
+import type { PartialWire } from './aggregator.ts';
+
+export interface PipelineIo {
+  stdout: NodeJS.WritableStream;
+  stderr: NodeJS.WritableStream;
+}
+
+const HELP = `usage: keelson run --brokers HOST:PORT[,...] [options]
+
+Runs the risk pipeline on Kafka (topics made by 'keelson topics').
+
+options:
+  --brokers LIST             bootstrap brokers (default: KAFKA_BROKERS)
+  --role all|engine|aggregate
+                             all (default): one instance does everything; engine + aggregate: scale out
+  --clock wall|event         valuation time: the wall clock (default), or the largest input ts seen
+  --topic-prefix P           (default: KAFKA_TOPIC_PREFIX, else 'keelson.')
+  --group G                  consumer group (default keelson-engine, keelson-aggregate for aggregate)
+  --instance-id ID           names this instance in client ids (default: random)
+  --publish-interval MS      exposures coalesced per node over this interval (default 100)
+  --decay-interval SECONDS   revalue the whole book this often (default 60 wall, 1 event; 0 = never)
+  --stale-after SECONDS      (default 5)
+  --reporting-currency CCY   (default USD)
+  --port N / --host ADDR     HTTP (default 127.0.0.1:9400; 0 picks a free port)
+  --token T                  bearer token for the data endpoints (default KEELSON_HTTP_TOKEN)
+  --open-metrics             leave /metrics open when a token is set
+  --duration SECONDS         stop by itself after this long
+  --log-level LEVEL          (default info)
+  -h, --help
+TLS and SASL: KAFKA_SSL*, KAFKA_SASL_* in the environment (see deploy/local-kafka/README.md).
+`;
+
+type Role = 'all' | 'engine' | 'aggregate';
+
+interface Args {
+  brokers: string;
+  role: Role;
+  clock: 'wall' | 'event';
+  topicPrefix?: string;
+  group: string;
+  instanceId: string;
+  publishIntervalMs: number;
+  decayIntervalMs: number;
+  staleAfterMs: number;
+  reportingCurrency: string;
+  port: number;
+  host: string;
+  token?: string;
+  guardMetrics: boolean;
+  durationMs?: number;
+  logLevel: string;
+}
+
+class UsageError extends Error {}
+
+function num(name: string, raw: string | undefined, fallback: number, min: number): number {
+  if (raw === undefined) return fallback;
+  const n = Number(raw);
+  if (!Number.isFinite(n) || n < min)
+    throw new UsageError(`--${name} must be a number >= ${min}, got '${raw}'`);
+  return n;
+}
+
+function parse(argv: string[], brokers: string): Args | 'help' {
+  const { values } = parseArgs({
+    args: argv,
+    strict: true,
+    allowPositionals: false,
+    options: {
+      brokers: { type: 'string' },
+      role: { type: 'string' },
+      clock: { type: 'string' },
+      'topic-prefix': { type: 'string' },
+      group: { type: 'string' },
+      'instance-id': { type: 'string' },
+      'publish-interval': { type: 'string' },
+      'decay-interval': { type: 'string' },
+      'stale-after': { type: 'string' },
+      'reporting-currency': { type: 'string' },
+      port: { type: 'string' },
+      host: { type: 'string' },
+      token: { type: 'string' },
+      'open-metrics': { type: 'boolean' },
+      duration: { type: 'string' },
+      'log-level': { type: 'string' },
+      quiet: { type: 'boolean' },
+      help: { type: 'boolean', short: 'h' },
+    },
+  });
+  if (values.help) return 'help';
+  const role = (values.role ?? 'all') as Role;
+  if (!['all', 'engine', 'aggregate'].includes(role))
+    throw new UsageError(`--role must be all, engine or aggregate, got '${values.role}'`);
+  const clock = (values.clock ?? 'wall') as 'wall' | 'event';
+  if (clock !== 'wall' && clock !== 'event')
+    throw new UsageError(`--clock must be wall or event, got '${values.clock}'`);
+  const token = values.token ?? process.env.KEELSON_HTTP_TOKEN;
+  const duration = values.duration === undefined ? undefined : num('duration', values.duration, 0, 0) * 1000;
+  const ccy = values['reporting-currency'] ?? 'USD';
+  if (!/^[A-Z]{3}$/.test(ccy))
+    throw new UsageError(`--reporting-currency must be three upper-case letters, got '${ccy}'`);
+  return {
+    brokers: values.brokers ?? brokers,
+    role,
+    clock,
+    ...(values['topic-prefix'] !== undefined ? { topicPrefix: values['topic-prefix'] } : {}),
+    group: values.group ?? (role === 'aggregate' ? 'keelson-aggregate' : 'keelson-engine'),
+    instanceId: values['instance-id'] ?? randomBytes(3).toString('hex'),
+    publishIntervalMs: num('publish-interval', values['publish-interval'], 100, 0),
+    decayIntervalMs: num('decay-interval', values['decay-interval'], clock === 'event' ? 1 : 60, 0) * 1000,
+    staleAfterMs: num('stale-after', values['stale-after'], 5, 0) * 1000,
+    reportingCurrency: ccy,
+    port: num('port', values.port, 9400, 0),
+    host: values.host ?? '127.0.0.1',
+    ...(token ? { token } : {}),
+    guardMetrics: !values['open-metrics'],
+    ...(duration !== undefined ? { durationMs: duration } : {}),
+    logLevel: values['log-level'] ?? 'info',
+  };
+}
+
+/** Tables every instance reads whole: few keys, replace-whole messages, compacted. */
+const TABLE_TOPICS = [TOPICS.curves, TOPICS.limits];
+/** Keyed inputs, co-partitioned by underlying: partition p of each belongs to one engine. */
+const KEYED_TOPICS = [TOPICS.refdata, TOPICS.vols, TOPICS.spots, TOPICS.trades];
+
+/** Latest raw record per (topic, key) of the table topics, in arrival order. */
+class TableStore {
+  private readonly rows = new Map<string, BusRecord>();
+  put(r: BusRecord): void {
+    const k = `${r.topic}\u0000${r.key ?? ''}`;
+    this.rows.delete(k);
+    this.rows.set(k, r);
+  }
+  all(): BusRecord[] {
+    // Curves before limits, so that a replayed limit is checked against priced nodes.
+    return [...this.rows.values()].sort((a, b) =>
+      a.topic === b.topic ? 0 : a.topic === TOPICS.curves ? -1 : 1,
+    );
+  }
+}
+
+/** Applies records to an engine while rebuilding: state only, every output dropped. */
+function restoreInto(engine: RiskEngine, records: BusRecord[]): void {
+  for (const p of planBatch(records).records) {
+    if (!p.apply) continue;
+    try {
+      engine.ingest(p.record.value, originOf(p.record));
+    } catch {
+      // Already dead-lettered when it was first handled; a rebuild must not stop on it.
+    }
+  }
+  engine.drain();
+}
+
+/**
+ * A partition's engine as the EngineRunner sees it: its "exposures" are the partition's partials,
+ * keyed nodeKey|partition, and limit alerts stay inside (limits are judged on the whole node, by
+ * the aggregate stage); stale-feed events and dead letters pass through.
+ */
+class PartitionEngine implements RunnerEngine {
+  constructor(
+    readonly engine: RiskEngine,
+    readonly partition: number,
+  ) {}
+  ingest(raw: string, source: string) {
+    return this.engine.ingest(raw, source);
+  }
+  revalueAll(): void {
+    this.engine.revalueAll();
+  }
+  private carry(p: NodePartial): ExposureMsg {
+    const wire: PartialWire = {
+      type: 'partial',
+      key: partialKey(p.nodeKey, this.partition),
+      sourcePartition: this.partition,
+      partial: p,
+    };
+    // The runner coalesces by nodeKey and reads node.underlying for latency; the value sent is the wire.
+    return { ...wire, nodeKey: wire.key, node: p.node, toJSON: () => wire } as unknown as ExposureMsg;
+  }
+  drain() {
+    const d = this.engine.drainPartials();
+    return {
+      exposures: d.partials.map((p) => this.carry(p)),
+      alerts: d.alerts.filter((a): a is StaleFeedMsg => a.type === 'stale-feed'),
+      rejected: d.rejected,
+    };
+  }
+  snapshot(): ExposureMsg[] {
+    return this.engine.partials().map((p) => this.carry(p));
+  }
+}
+
+export async function runKafkaPipeline(opts: {
+  argv: string[];
+  io: PipelineIo;
+  brokers: string;
+}): Promise<number> {
+  let args: Args | 'help';
+  try {
+    args = parse(opts.argv, opts.brokers);
+  } catch (e) {
+    opts.io.stderr.write(`keelson run: ${(e as Error).message}\n\n${HELP}`);
+    return 1;
+  }
+  if (args === 'help') {
+    opts.io.stdout.write(HELP);
+    return 0;
+  }
+  const a = args;
+  const log = await createLogger({ level: a.logLevel, stream: opts.io.stderr });
+  const busLog: KafkaBusLogger = {
+    debug: (o, m) => log.debug(o, m),
+    info: (o, m) => log.info(o, m),
+    warn: (o, m) => log.warn(o, m),
+    error: (o, m) => log.error(o, m),
+  };
+
+  let bus: KafkaBus;
+  try {
+    bus = new KafkaBus({
+      brokers: a.brokers,
+      ...(a.topicPrefix !== undefined ? { topicPrefix: a.topicPrefix } : {}),
+      groupId: a.group,
+      clientId: `keelson-${a.role}-${a.instanceId}`,
+      logger: busLog,
+      // Batches of all owned partitions wait for the same exposure flush together, not in turn.
+      partitionsConsumedConcurrently: 64,
+    });
+  } catch (e) {
+    opts.io.stderr.write(`keelson run: ${(e as Error).message}\n`);
+    return 1;
+  }
+
+  const metrics = new KeelsonMetrics();
+  const alertLog = new AlertLog(500);
+  const sse = new SseHub({ now: () => Date.now() });
+  const checks: Record<string, ReadinessCheck> = {
+    busConnected: { ok: false, detail: 'connecting' },
+    stateRebuilt: { ok: false, detail: 'waiting for a partition assignment' },
+  };
+  const onPublished = (p: Published) => {
+    for (const x of p.alerts) {
+      alertLog.add(x);
+      sse.publishAlert(x);
+      if (x.type === 'alert')
+        log.info(
+          { limitId: x.limitId, nodeKey: x.nodeKey, severity: x.severity, state: x.state },
+          'limit alert',
+        );
+      else log.warn({ underlying: x.underlying, state: x.state }, 'feed staleness');
+    }
+    for (const r of p.rejected) log.warn({ source: r.source, reason: r.reason }, 'input rejected');
+    if (a.role !== 'engine') for (const e of p.exposures) sse.publishExposure(e);
+  };
+  const onError = (err: unknown, context: string) => log.error({ err, context }, 'pipeline fault');
+  const newEngine = () =>
+    new RiskEngine({
+      clock: a.clock === 'event' ? 'event' : new WallClock(),
+      observer: metrics.observer,
+      reportingCurrency: a.reportingCurrency,
+      staleAfterMs: a.staleAfterMs,
+    });
+  const runnerFor = (
+    engine: RunnerEngine,
+    outputs?: { exposures: string; alerts: string; rejected: string },
+  ) => {
+    const r = new EngineRunner({
+      engine,
+      bus: outputs ? partialsBus(bus) : bus,
+      metrics,
+      observer: metrics.observer,
+      publishIntervalMs: a.publishIntervalMs,
+      holdForExposures: true,
+      onPublished,
+      onError,
+      ...(outputs ? { outputTopics: outputs } : {}),
+    });
+    r.recordLatency = false;
+    return r;
+  };
+
+  const stopFns: (() => Promise<void>)[] = [];
+  let snapshot: () => ExposureMsg[] = () => [];
+  let openAlerts: () => AlertMsg[] = () => [];
+
+  try {
+    if (a.role === 'all') {
+      let engine = newEngine();
+      let runner = runnerFor(engine);
+      let owned = 0;
+      snapshot = () => engine.snapshot();
+      openAlerts = () => engine.openAlerts();
+      metrics.bindEngine(engine);
+      const decay = startDecay(a, () => ({ engine, runner }), onError);
+      stopFns.push(async () => {
+        clearInterval(decay);
+        await runner.stop();
+      });
+      await bus.subscribe(
+        [...TABLE_TOPICS, ...KEYED_TOPICS],
+        async (batch: BusRecord[], ctx: BatchContext) => {
+          if (ctx.restoring) return restoreInto(engine, batch);
+          await runner.handle(batch);
+        },
+        {
+          rebuild: true,
+          onPhase: (e) => {
+            if (e.phase === 'restoring') {
+              void runner.stop().catch((err: unknown) => onError(err, 'stopping the previous generation'));
+              engine = newEngine();
+              runner = runnerFor(engine);
+              metrics.bindEngine(engine);
+              owned = e.assignment.reduce((n, x) => n + x.partitions.length, 0);
+              checks.stateRebuilt = { ok: false, detail: `rebuilding ${owned} partitions from the topics` };
+              metrics.setReady(false);
+              log.info(
+                { generation: e.generation, assignment: e.assignment },
+                'partitions assigned; rebuilding',
+              );
+            }
+          },
+          beforeLive: async () => {
+            let total = 0;
+            for (const t of [...TABLE_TOPICS, ...KEYED_TOPICS]) total += await bus.partitionCount(t);
+            await runner.publishSnapshot();
+            runner.recordLatency = true;
+            if (owned < total) {
+              checks.stateRebuilt = {
+                ok: false,
+                detail: `role all owns ${owned} of ${total} input partitions: another instance shares group ${a.group}; scale out with --role engine and --role aggregate`,
+              };
+              log.error({ owned, total, group: a.group }, 'role all does not own every partition');
+            } else {
+              checks.stateRebuilt = { ok: true, detail: `rebuilt; ${engine.stats().positions} positions` };
+              metrics.setReady(true);
+            }
+            log.info({ positions: engine.stats().positions }, 'rebuilt from the topics; live');
+          },
+        },
+      );
+    } else if (a.role === 'engine') {
+      const tables = new TableStore();
+      const engines = new Map<number, { pe: PartitionEngine; runner: EngineRunner }>();
+      let live = false;
+      let tablesLive!: () => void;
+      const tablesReady = new Promise<void>((r) => (tablesLive = r));
+      snapshot = () => [];
+      openAlerts = () => [];
+      metrics.bindEngine({
+        stats: () => {
+          let positions = 0;
+          for (const { pe } of engines.values()) positions += pe.engine.stats().positions;
+          return { positions, unpriced: {} };
+        },
+        feeds: () => [...engines.values()].flatMap(({ pe }) => pe.engine.feeds()),
+        openAlerts: () => [],
+      });
+      await bus.subscribe(
+        TABLE_TOPICS,
+        async (batch, ctx) => {
+          for (const r of batch) tables.put(r);
+          if (ctx.restoring || !live) {
+            for (const { pe } of engines.values()) restoreInto(pe.engine, batch);
+            return;
+          }
+          await Promise.all([...engines.values()].map(({ runner }) => runner.handle(batch)));
+        },
+        {
+          groupId: `${a.group}.tables.${a.instanceId}.${randomBytes(3).toString('hex')}`,
+          commit: false,
+          rebuild: true,
+          onPhase: (e) => e.phase === 'live' && tablesLive(),
+        },
+      );
+      const decay = startDecayMany(
+        a,
+        () => [...engines.values()].map(({ pe, runner }) => ({ engine: pe.engine, runner })),
+        onError,
+      );
+      stopFns.push(async () => {
+        clearInterval(decay);
+        await Promise.all([...engines.values()].map(({ runner }) => runner.stop()));
+      });
+      await bus.subscribe(
+        KEYED_TOPICS,
+        async (batch, ctx) => {
+          const p = batch[0]?.partition ?? -1;
+          const e = engines.get(p);
+          if (!e) throw new Error(`a batch of partition ${p}, which this instance does not own`);
+          if (ctx.restoring) return restoreInto(e.pe.engine, batch);
+          await e.runner.handle(batch);
+        },
+        {
+          rebuild: true,
+          onPhase: (e) => {
+            if (e.phase !== 'restoring') return;
+            live = false;
+            for (const { runner } of engines.values())
+              void runner.stop().catch((err: unknown) => onError(err, 'stopping the previous generation'));
+            engines.clear();
+            const parts = new Set(e.assignment.flatMap((x) => x.partitions));
+            for (const p of parts) {
+              const pe = new PartitionEngine(newEngine(), p);
+              restoreInto(pe.engine, tables.all());
+              engines.set(p, {
+                pe,
+                runner: runnerFor(pe, {
+                  exposures: TOPICS.partials,
+                  alerts: TOPICS.alerts,
+                  rejected: TOPICS.rejected,
+                }),
+              });
+            }
+            checks.stateRebuilt = {
+              ok: false,
+              detail: `rebuilding input partitions ${[...parts].sort((x, y) => x - y).join(',') || '(none)'}`,
+            };
+            metrics.setReady(false);
+            log.info({ generation: e.generation, partitions: [...parts] }, 'partitions assigned; rebuilding');
+          },
+          beforeLive: async () => {
+            await tablesReady;
+            await Promise.all(
+              [...engines.values()].map(async ({ runner }) => {
+                await runner.publishSnapshot();
+                runner.recordLatency = true;
+              }),
+            );
+            live = true;
+            checks.stateRebuilt = {
+              ok: true,
+              detail: `live on input partitions ${[...engines.keys()].sort((x, y) => x - y).join(',') || '(none)'}`,
+            };
+            metrics.setReady(true);
+            log.info({ partitions: [...engines.keys()] }, 'rebuilt from the topics; live');
+          },
+        },
+      );
+    } else {
+      let agg = new PartialsAggregator();
+      const limitRows = new TableStore();
+      let live = false;
+      let limitsLive!: () => void;
+      const limitsReady = new Promise<void>((r) => (limitsLive = r));
+      const out = new AggregateOutput(bus, a.publishIntervalMs, onPublished);
+      snapshot = () => agg.snapshot();
+      openAlerts = () => agg.openAlerts();
+      metrics.bindEngine({
+        stats: () => ({
+          positions: agg.snapshot().find((e) => e.nodeKey === 'firm')?.positions ?? 0,
+          unpriced: {},
+        }),
+        feeds: () => [],
+        openAlerts: () => agg.openAlerts(),
+        utilizations: () => agg.utilizations(),
+      });
+      stopFns.push(() => out.stop());
+      await bus.subscribe(
+        [TOPICS.limits],
+        async (batch, ctx) => {
+          for (const r of batch) {
+            limitRows.put(r);
+            agg.applyLimit(r.value);
+          }
+          if (ctx.restoring || !live) {
+            agg.drain();
+            return;
+          }
+          await out.emit(agg.drain());
+        },
+        {
+          groupId: `${a.group}.limits.${a.instanceId}.${randomBytes(3).toString('hex')}`,
+          commit: false,
+          rebuild: true,
+          onPhase: (e) => e.phase === 'live' && limitsLive(),
+        },
+      );
+      await bus.subscribe(
+        [TOPICS.partials],
+        async (batch, ctx) => {
+          for (const r of batch) {
+            const d = decodePartial(r.value);
+            if (d.ok) agg.applyPartial(d.wire);
+            else if (!ctx.restoring) log.error({ source: originOf(r), reason: d.reason }, 'not a partial');
+          }
+          if (ctx.restoring) {
+            agg.drain();
+            return;
+          }
+          await out.emit(agg.drain());
+        },
+        {
+          rebuild: true,
+          onPhase: (e) => {
+            if (e.phase !== 'restoring') return;
+            live = false;
+            agg = new PartialsAggregator();
+            for (const r of limitRows.all()) agg.applyLimit(r.value);
+            agg.drain();
+            checks.stateRebuilt = { ok: false, detail: 'rebuilding partials' };
+            metrics.setReady(false);
+            log.info(
+              { generation: e.generation, assignment: e.assignment },
+              'partials partitions assigned; rebuilding',
+            );
+          },
+          beforeLive: async () => {
+            await limitsReady;
+            agg.touchAll();
+            live = true;
+            await out.emit(agg.drain());
+            checks.stateRebuilt = { ok: true, detail: 'rebuilt; summing partials' };
+            metrics.setReady(true);
+            log.info({ nodes: agg.snapshot().length }, 'rebuilt from the partials; live');
+          },
+        },
+      );
+    }
+  } catch (e) {
+    log.error({ err: e }, 'could not start on Kafka');
+    await bus.close();
+    return 1;
+  }
+
+  let http: RunningHttpServer;
+  try {
+    sse.setSnapshot(() => ({ exposures: snapshot(), alerts: alertLog.recent(), limits: [] }));
+    http = await startHttpServer({
+      host: a.host,
+      port: a.port,
+      ...(a.token ? { token: a.token } : {}),
+      guardMetrics: a.guardMetrics,
+      metrics,
+      exposures: () => snapshot(),
+      alerts: () => ({ open: openAlerts(), recent: alertLog.recent() }),
+      readiness: () => {
+        const st = bus.status();
+        checks.busConnected = {
+          ok: st.connected,
+          detail: st.connected
+            ? `connected to ${bus.connection.brokers.join(',')}`
+            : `not connected: ${st.producer.lastError ?? st.consumers.find((c) => c.lastError)?.lastError ?? st.consumers.map((c) => `${c.groupId} ${c.state}`).join(', ')}`,
+        };
+        return { ...checks };
+      },
+      events: sse,
+      now: () => Date.now(),
+      onError: (err, path) => log.error({ err, path }, 'http handler failed'),
+    });
+  } catch (e) {
+    log.error({ err: e }, 'http server did not start');
+    await bus.close();
+    return 1;
+  }
+  log.info(
+    { url: http.url, role: a.role, group: a.group, clock: a.clock, prefix: bus.topicPrefix },
+    'running on kafka',
+  );
+
+  return await new Promise<number>((resolve) => {
+    let stopping = false;
+    const stop = async (why: string) => {
+      if (stopping) return;
+      stopping = true;
+      log.info({ why }, 'stopping');
+      for (const f of stopFns) await f().catch((err: unknown) => onError(err, 'stop'));
+      await bus.close().catch((err: unknown) => onError(err, 'bus close'));
+      await http.close().catch(() => undefined);
+      process.off('SIGINT', onSig);
+      process.off('SIGTERM', onSig);
+      resolve(0);
+    };
+    const onSig = (sig: NodeJS.Signals) => void stop(sig);
+    process.on('SIGINT', onSig);
+    process.on('SIGTERM', onSig);
+    if (a.durationMs !== undefined) setTimeout(() => void stop('duration reached'), a.durationMs);
+  });
+}
+
+/**
+ * Revalues the book on a timer. In event-clock mode only when the event clock moved: after a feed
+ * goes quiet the book is then valued once more at the last event time, as a replay's end is.
+ */
+function startDecay(
+  a: Args,
+  current: () => { engine: RiskEngine; runner: EngineRunner },
+  onError: (e: unknown, c: string) => void,
+) {
+  return startDecayMany(a, () => [current()], onError);
+}
+
+function startDecayMany(
+  a: Args,
+  all: () => { engine: RiskEngine; runner: EngineRunner }[],
+  onError: (e: unknown, c: string) => void,
+) {
+  const lastAt = new WeakMap<RiskEngine, number>();
+  const timer = setInterval(
+    () => {
+      for (const { engine, runner } of all()) {
+        if (a.clock === 'event' && lastAt.get(engine) === engine.now) continue;
+        try {
+          engine.revalueAll();
+          lastAt.set(engine, engine.now);
+          // An empty batch publishes what the revaluation changed, through the same path as inputs.
+          runner.handle([]).catch((err: unknown) => onError(err, 'decay publish'));
+        } catch (err) {
+          onError(err, 'decay');
+        }
+      }
+    },
+    a.decayIntervalMs > 0 ? a.decayIntervalMs : 2 ** 31 - 1,
+  );
+  timer.unref();
+  return timer;
+}
+
+/** The runner's view of the bus for an engine role: its "exposures" go to partials, by node. */
+function partialsBus(bus: KafkaBus) {
+  return {
+    publish: (topic: string, records: { key: string | null; value: string }[]) =>
+      topic === TOPICS.partials
+        ? bus.publishPartitioned(
+            topic,
+            records.map((r) => ({
+              ...r,
+              partitionKey: (r.key ?? '').slice(0, (r.key ?? '').lastIndexOf('|')),
+            })),
+          )
+        : bus.publish(topic, records),
+    subscribe: () => Promise.reject(new Error('the partials bus only publishes')),
+    close: () => Promise.resolve(),
+  };
+}
+
+/**
+ * The aggregate stage's outputs: alerts published at once and awaited; exposures coalesced per
+ * node over the publish interval, the handler waiting for the flush that carries them.
+ */
+class AggregateOutput {
+  private pending = new Map<string, ExposureMsg>();
+  private timer: NodeJS.Timeout | null = null;
+  private waiters: { resolve: () => void; reject: (e: unknown) => void }[] = [];
+  private chain: Promise<void> = Promise.resolve();
+  private lastFlush = 0;
+
+  constructor(
+    private readonly bus: KafkaBus,
+    private readonly intervalMs: number,
+    private readonly onPublished: (p: Published) => void,
+  ) {}
+
+  async emit(o: { exposures: ExposureMsg[]; alerts: AlertMsg[] }): Promise<void> {
+    const work: Promise<void>[] = [];
+    if (o.alerts.length) {
+      const alerts = o.alerts;
+      work.push(
+        this.enqueue(async () => {
+          await this.bus.publish(
+            TOPICS.alerts,
+            alerts.map((x) => ({ key: x.limitId, value: JSON.stringify(x) })),
+          );
+          this.onPublished({ exposures: [], alerts, rejected: [] as RejectedMsg[] });
+        }),
+      );
+    }
+    if (o.exposures.length) {
+      for (const e of o.exposures) {
+        this.pending.delete(e.nodeKey);
+        this.pending.set(e.nodeKey, e);
+      }
+      work.push(new Promise((resolve, reject) => this.waiters.push({ resolve, reject })));
+      const wait = Math.max(0, this.lastFlush + this.intervalMs - Date.now());
+      if (!this.timer)
+        this.timer = setTimeout(() => void this.enqueue(() => this.flush()).catch(() => undefined), wait);
+    }
+    await Promise.all(work);
+  }
+
+  private enqueue(fn: () => Promise<void>): Promise<void> {
+    const run = this.chain.then(fn);
+    this.chain = run.catch(() => undefined);
+    return run;
+  }
+
+  private async flush(): Promise<void> {
+    this.timer = null;
+    const exposures = [...this.pending.values()];
+    const waiters = this.waiters;
+    this.pending = new Map();
+    this.waiters = [];
+    this.lastFlush = Date.now();
+    try {
+      if (exposures.length)
+        await this.bus.publish(
+          TOPICS.exposures,
+          exposures.map((e) => ({ key: e.nodeKey, value: JSON.stringify(e) })),
+        );
+    } catch (e) {
+      for (const x of exposures) if (!this.pending.has(x.nodeKey)) this.pending.set(x.nodeKey, x);
+      for (const w of waiters) w.reject(e);
+      return;
+    }
+    this.onPublished({ exposures, alerts: [], rejected: [] });
+    for (const w of waiters) w.resolve();
+  }
+
+  async stop(): Promise<void> {
+    if (this.timer) clearTimeout(this.timer);
+    await this.enqueue(() => this.flush()).catch(() => undefined);
+  }
+}
