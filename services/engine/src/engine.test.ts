@@ -576,3 +576,43 @@ describe('inputs', () => {
     expect(e.now).toBe(T0 + 100);
   });
 });
+
+describe('observer and stats', () => {
+  it('reports every input with its type and outcome, revaluations and alerts', () => {
+    const inputs: string[] = [];
+    const alerts: string[] = [];
+    const stale: string[] = [];
+    const rejected: string[] = [];
+    const e = engine({
+      observer: {
+        input: (t, o) => inputs.push(`${t}:${o}`),
+        alert: (a) => alerts.push(a.alertId),
+        staleFeed: (s) => stale.push(`${s.underlying}:${s.state}`),
+        rejected: (r) => rejected.push(r.source),
+      },
+    });
+    feed(e, [underlying('ACME'), spot('ACME', 100), trade({ id: 'L', linear: true, quantity: 10 }), trade({ id: 'L', linear: true, quantity: 10 })]);
+    feed(e, [limit({ limitId: 'L1', scope: {}, metric: 'pv', max: 500 })]);
+    e.ingest('{"type":"spot"}', 'r1');
+    e.ingest('}{', 'r2');
+    feed(e, [underlying('ZED', {}, T0 + 6000)]);
+    expect(inputs).toEqual([
+      'underlying:accepted',
+      'spot:accepted',
+      'trade:accepted',
+      'trade:duplicate',
+      'limit:accepted',
+      'spot:rejected',
+      'unknown:rejected',
+      'underlying:accepted',
+    ]);
+    expect(alerts).toEqual(['L1#1']);
+    expect(stale).toEqual(['ACME:raised']);
+    expect(rejected).toEqual(['r1', 'r2']);
+    expect(e.stats()).toEqual({ positions: 1, instruments: 1, unpriced: {}, revaluations: 1, valuationMs: T0 + 6000 });
+    expect(e.utilizations()).toEqual([{ limitId: 'L1', utilization: 2 }]);
+    expect(e.limits()).toEqual([
+      { limitId: 'L1', nodeKey: 'firm', metric: 'pv', max: 500, warnAt: 0.8, hysteresis: 0.05, value: 1000, utilization: 2, level: 'breach' },
+    ]);
+  });
+});

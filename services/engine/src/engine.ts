@@ -52,12 +52,11 @@ import {
 import { LimitMonitor } from './limits.ts';
 import type { LimitView, MetricValues } from './limits.ts';
 import { NodeCube, exposureOf } from './nodes.ts';
-import type { Node, NodeSet } from './nodes.ts';
+import type { Node, NodeSet, Pending } from './nodes.ts';
 import { partialOf } from './partials.ts';
 import { msOf } from './time.ts';
 import type { NodePartial } from './partials.ts';
 import {
-  CompensatedSum,
   METRIC_COUNT,
   M_CASH_DELTA,
   M_CASH_GAMMA,
@@ -149,14 +148,17 @@ class Underlying implements FeedEntry {
 
 /** The trades of one desk/book on one instrument: priced once, scaled by the summed size. */
 class Holding {
-  readonly qm = new CompensatedSum();
-  readonly cost = new CompensatedSum();
+  // quantity x multiplier and cost, compensated (Neumaier) as trades come and go; plain fields
+  // rather than accumulator objects, so one update reads one object and one slab row
+  qmS = 0;
+  qmC = 0;
+  costS = 0;
+  costC = 0;
   trades = 0;
   /** position in its instrument's holding list, for O(1) removal */
   slot = -1;
   // what this holding currently contributes to its nodes
   set: NodeSet | null = null;
-  readonly vec = new Float64Array(METRIC_COUNT);
   reason = EMPTY;
   stale = false;
   appliedTrades = 0;
@@ -166,7 +168,54 @@ class Holding {
     readonly und: Underlying,
     readonly desk: string,
     readonly book: string,
+    /** its row of a shared slab: the contribution currently applied to its nodes */
+    readonly vec: Float64Array,
   ) {}
+
+  get qm(): number {
+    return this.qmS + this.qmC;
+  }
+
+  get cost(): number {
+    return this.costS + this.costC;
+  }
+
+  addTrade(qm: number, cost: number, sign: 1 | -1): void {
+    const a = sign * qm;
+    let t = this.qmS + a;
+    this.qmC += Math.abs(this.qmS) >= Math.abs(a) ? this.qmS - t + a : a - t + this.qmS;
+    this.qmS = t;
+    const c = sign * cost;
+    t = this.costS + c;
+    this.costC += Math.abs(this.costS) >= Math.abs(c) ? this.costS - t + c : c - t + this.costS;
+    this.costS = t;
+    this.trades += sign;
+    if (this.trades === 0) {
+      this.qmS = this.qmC = this.costS = this.costC = 0;
+    }
+  }
+}
+
+/** Contribution rows carved from shared slabs and reused, so holdings sit close in memory. */
+class VecSlab {
+  private chunk = new Float64Array(0);
+  private used = 0;
+  private readonly free: Float64Array[] = [];
+  take(): Float64Array {
+    const f = this.free.pop();
+    if (f) return f;
+    if (this.used === this.chunk.length) {
+      this.chunk = new Float64Array(METRIC_COUNT * 4096);
+      this.used = 0;
+    }
+    const v = this.chunk.subarray(this.used, this.used + METRIC_COUNT);
+    this.used += METRIC_COUNT;
+    return v;
+  }
+  give(v: Float64Array): void {
+    v.fill(0);
+    this.free.push(v);
+  }
 }
 
 interface LiveTrade {
@@ -208,6 +257,7 @@ export class RiskEngine {
   private readonly trades = new Map<string, TradeRecord>();
   private liveTrades = 0;
   private readonly holdings = new Map<string, Holding>();
+  private readonly slab = new VecSlab();
   private readonly instHoldings: Holding[][] = [];
   private readonly inst = new InstrumentTable();
 
@@ -231,7 +281,8 @@ export class RiskEngine {
   private inputChangedNodes = 0;
 
   // outputs since the last drain
-  private readonly outNodes = new Set<Node>();
+  /** nodes changed since the last drain, each once (Node.outPending) */
+  private outNodes: Node[] = [];
   private outAlerts: (AlertMsg | StaleFeedMsg)[] = [];
   private outRejected: RejectedMsg[] = [];
   private totalRevaluations = 0;
@@ -270,6 +321,7 @@ export class RiskEngine {
     this.begin(this.clock ? this.clock.now() : this.eventMs);
     for (let i = 0; i < this.inst.count; i++) this.markDirty(i);
     this.repriceDirty();
+    this.flush();
     this.resyncSums();
     // every limit once more, whatever changed (checking is idempotent for unchanged values)
     for (const key of this.limitBook.scopes()) {
@@ -280,8 +332,7 @@ export class RiskEngine {
   }
 
   drain(): EngineDrain {
-    const nodes = [...this.outNodes].sort(byKey);
-    this.outNodes.clear();
+    const nodes = this.takeChanged();
     const exposures = nodes.map((n) => exposureOf(n, this.reportingCurrency, UNPRICED_REASONS));
     const alerts = this.outAlerts;
     const rejected = this.outRejected;
@@ -292,14 +343,20 @@ export class RiskEngine {
 
   /** Like drain, but the changed nodes as partials (scale-out: several partitions, one node). */
   drainPartials(): { partials: NodePartial[]; alerts: (AlertMsg | StaleFeedMsg)[]; rejected: RejectedMsg[] } {
-    const nodes = [...this.outNodes].sort(byKey);
-    this.outNodes.clear();
+    const nodes = this.takeChanged();
     const partials = nodes.map((n) => partialOf(n, this.reportingCurrency, UNPRICED_REASONS));
     const alerts = this.outAlerts;
     const rejected = this.outRejected;
     this.outAlerts = [];
     this.outRejected = [];
     return { partials, alerts, rejected };
+  }
+
+  private takeChanged(): Node[] {
+    const nodes = this.outNodes;
+    this.outNodes = [];
+    for (const n of nodes) n.outPending = false;
+    return nodes.sort(byKey);
   }
 
   snapshot(): ExposureMsg[] {
@@ -450,6 +507,7 @@ export class RiskEngine {
   }
 
   private finish(): void {
+    this.flush();
     const t = this.valuationMs;
     const alerts = this.inputAlerts;
     for (const n of this.checkNodes) {
@@ -603,7 +661,7 @@ export class RiskEngine {
     const hkey = `${i}\u0000${msg.desk}\u0000${msg.book}`;
     let h = this.holdings.get(hkey);
     if (!h) {
-      h = new Holding(hkey, i, u, msg.desk, msg.book);
+      h = new Holding(hkey, i, u, msg.desk, msg.book, this.slab.take());
       this.holdings.set(hkey, h);
       const list = this.instHoldings[i] as Holding[];
       h.slot = list.length;
@@ -614,29 +672,26 @@ export class RiskEngine {
     if (old) this.removeFromHolding(old);
     else this.liveTrades += 1;
     rec.live = live;
-    h.qm.add(live.qm);
-    h.cost.add(live.cost);
-    h.trades += 1;
+    h.addTrade(live.qm, live.cost, 1);
     if (old && old.holding !== h) this.updateHolding(old.holding);
-    // the instrument is priced now, at the current valuation time, so that every holding on it
-    // (the new trade's and the others') stands on the same valuation
-    this.markDirty(i);
-    this.repriceDirty();
+    if (this.inst.valuedAt[i] === this.valuationMs) {
+      // its per-unit results are those of this very valuation time: only this holding moves
+      this.updateHolding(h);
+    } else {
+      // priced now, so that every holding on it (this trade's and the others') stands on one valuation
+      this.markDirty(i);
+      this.repriceDirty();
+    }
     return 'accepted';
   }
 
   private removeFromHolding(t: LiveTrade): void {
-    const h = t.holding;
-    h.qm.add(-t.qm);
-    h.cost.add(-t.cost);
-    h.trades -= 1;
-    if (h.trades === 0) {
-      h.qm.reset();
-      h.cost.reset();
-    }
+    t.holding.addTrade(t.qm, t.cost, -1);
   }
 
   private onLimit(msg: LimitMsg): Outcome {
+    // scopes join and leave node sets below: nothing may be staged against the old sets
+    this.flush();
     const before = this.namedBy.get(msg.limitId);
     const { scopeKey } = this.limitBook.set(msg);
     let node: Node;
@@ -661,6 +716,7 @@ export class RiskEngine {
   private readonly namedBy = new Map<string, string>();
 
   private onLimitRemove(msg: LimitRemoveMsg): Outcome {
+    this.flush();
     if (!this.limitBook.has(msg.limitId)) return 'duplicate';
     const { alerts, scopeKey } = this.limitBook.remove(msg.limitId, this.valuationMs);
     this.inputAlerts.push(...alerts);
@@ -743,6 +799,7 @@ export class RiskEngine {
     let revalued = 0;
     for (const i of dirty) {
       if ((this.instHoldings[i] as Holding[]).length === 0) continue;
+      I.valuedAt[i] = t;
       const u = this.undList[I.underlying[i] as number] as Underlying;
       const isOption = I.isOption[i] === 1;
       // the bucket moves with time whether or not the option can be priced
@@ -937,7 +994,7 @@ export class RiskEngine {
   private updateHolding(h: Holding): void {
     const reason = this.reasonOf(h);
     const v = this.scratch;
-    if (reason === PRICED) this.contribution(h.inst, h.qm.value, h.cost.value, this.fxRate((h.und.ref as RefData).currency) as number, v);
+    if (reason === PRICED) this.contribution(h.inst, h.qm, h.cost, this.fxRate((h.und.ref as RefData).currency) as number, v);
     else v.fill(0);
     const stale = reason === PRICED && h.und.stale;
     const tenor = this.inst.tenor[h.inst] as number;
@@ -946,23 +1003,10 @@ export class RiskEngine {
     const trades = h.trades;
     if (set === h.set && reason === h.reason && stale === h.stale && trades === h.appliedTrades && sameVec(v, h.vec)) return;
     if (set === h.set && set !== null) {
-      for (const n of set.nodes) {
-        applyToNode(n, h.vec, v, h.appliedTrades, trades, h.reason, reason, h.stale, stale);
-        this.touch(n);
-      }
+      this.stage(set, h.vec, v, h.appliedTrades, trades, h.reason, reason, h.stale, stale);
     } else {
-      if (h.set) {
-        for (const n of h.set.nodes) {
-          applyToNode(n, h.vec, ZERO_VEC, h.appliedTrades, 0, h.reason, EMPTY, h.stale, false);
-          this.touch(n);
-        }
-      }
-      if (set) {
-        for (const n of set.nodes) {
-          applyToNode(n, ZERO_VEC, v, 0, trades, EMPTY, reason, false, stale);
-          this.touch(n);
-        }
-      }
+      if (h.set) this.stage(h.set, h.vec, ZERO_VEC, h.appliedTrades, 0, h.reason, EMPTY, h.stale, false);
+      if (set) this.stage(set, ZERO_VEC, v, 0, trades, EMPTY, reason, false, stale);
     }
     h.set = set;
     h.vec.set(v);
@@ -971,6 +1015,58 @@ export class RiskEngine {
     h.appliedTrades = trades;
     if (trades === 0) this.dropHolding(h);
   }
+
+  /** Adds a holding's change of contribution to its node set's staged differences. */
+  private stage(
+    set: NodeSet,
+    oldVec: Float64Array,
+    newVec: Float64Array,
+    oldTrades: number,
+    newTrades: number,
+    oldReason: number,
+    newReason: number,
+    oldStale: boolean,
+    newStale: boolean,
+  ): void {
+    const p = set.pending;
+    if (!p.staged) {
+      p.staged = true;
+      this.stagedSets.push(set);
+    }
+    const pv = p.vec;
+    for (let k = 0; k < METRIC_COUNT; k++) pv[k] = (pv[k] as number) + ((newVec[k] as number) - (oldVec[k] as number));
+    p.positions += newTrades - oldTrades;
+    if (oldReason >= 0) p.unpriced[oldReason] = (p.unpriced[oldReason] as number) - oldTrades;
+    if (newReason >= 0) p.unpriced[newReason] = (p.unpriced[newReason] as number) + newTrades;
+    p.stale += (newStale ? 1 : 0) - (oldStale ? 1 : 0);
+  }
+
+  /** Applies the staged differences: sets into their nodes, then one update per node. */
+  private flush(): void {
+    const sets = this.stagedSets;
+    if (sets.length === 0) return;
+    const nodes = this.stagedNodes;
+    for (const s of sets) {
+      for (const n of s.nodes) {
+        if (!n.pending.staged) {
+          n.pending.staged = true;
+          nodes.push(n);
+        }
+        s.pending.addInto(n.pending);
+      }
+      s.pending.clear();
+    }
+    sets.length = 0;
+    for (const n of nodes) {
+      applyPending(n, n.pending);
+      n.pending.clear();
+      this.touch(n);
+    }
+    nodes.length = 0;
+  }
+
+  private readonly stagedSets: NodeSet[] = [];
+  private readonly stagedNodes: Node[] = [];
 
   private dropHolding(h: Holding): void {
     this.holdings.delete(h.key);
@@ -981,13 +1077,17 @@ export class RiskEngine {
       last.slot = h.slot;
     }
     h.slot = -1;
+    this.slab.give(h.vec);
   }
 
   /** Marks a node changed by the current input: published at the next drain, its limits checked. */
   private touch(n: Node): void {
     n.asOfMs = this.valuationMs;
     n.wasKept = n.kept;
-    this.outNodes.add(n);
+    if (!n.outPending) {
+      n.outPending = true;
+      this.outNodes.push(n);
+    }
     if (n.changedSeq !== this.seq) {
       n.changedSeq = this.seq;
       this.inputChangedNodes += 1;
@@ -1031,6 +1131,17 @@ function applyToNode(
   if (oldReason >= 0) n.unpriced[oldReason] = (n.unpriced[oldReason] as number) - oldTrades;
   if (newReason >= 0) n.unpriced[newReason] = (n.unpriced[newReason] as number) + newTrades;
   n.staleCount += (newStale ? 1 : 0) - (oldStale ? 1 : 0);
+  if (n.positions === 0) n.clearSums();
+}
+
+function applyPending(n: Node, p: Pending): void {
+  for (let k = 0; k < METRIC_COUNT; k++) {
+    const d = p.vec[k] as number;
+    if (d !== 0) n.add(k, d);
+  }
+  n.positions += p.positions;
+  for (let r = 0; r < p.unpriced.length; r++) n.unpriced[r] = (n.unpriced[r] as number) + (p.unpriced[r] as number);
+  n.staleCount += p.stale;
   if (n.positions === 0) n.clearSums();
 }
 

@@ -42,6 +42,8 @@ export class InstrumentTable {
   spot = new Float64Array(0);
   /** input sequence of the last time it was put in a dirty set (dedupes a dirty set) */
   dirtySeq = new Float64Array(0);
+  /** valuation time of the last revaluation (NaN before the first) */
+  valuedAt = new Float64Array(0);
   private readonly byKey = new Map<string, number>();
 
   key(underlying: string, ins: OptionInstrument | LinearInstrument): string {
@@ -71,6 +73,7 @@ export class InstrumentTable {
     }
     this.status[i] = R_NO_REFERENCE;
     this.dirtySeq[i] = -1;
+    this.valuedAt[i] = Number.NaN;
     this.byKey.set(key, i);
     return i;
   }
@@ -99,6 +102,7 @@ export class InstrumentTable {
     this.rho = g(this.rho, Float64Array);
     this.spot = g(this.spot, Float64Array);
     this.dirtySeq = g(this.dirtySeq, Float64Array);
+    this.valuedAt = g(this.valuedAt, Float64Array);
     this.cap = cap;
   }
 }

@@ -27,6 +27,10 @@ export class Node {
   changedSeq = -1;
   /** Whether the node was in the kept set at the last change (to publish its farewell once). */
   wasKept = false;
+  /** Listed among the nodes changed since the last drain. */
+  outPending = false;
+  /** Changes staged by the current input, applied once per node when the input is done. */
+  readonly pending = new Pending();
 
   constructor(dims: NodeDims, fixed: boolean) {
     this.dims = dims;
@@ -54,9 +58,37 @@ export class Node {
   }
 }
 
+/**
+ * Differences staged for one node or node set: the holdings of one input add into their set, the
+ * sets into their nodes, and each node takes one compensated update however many holdings moved.
+ */
+export class Pending {
+  staged = false;
+  readonly vec = new Float64Array(METRIC_COUNT);
+  positions = 0;
+  readonly unpriced = new Int32Array(REASON_COUNT);
+  stale = 0;
+
+  addInto(o: Pending): void {
+    for (let k = 0; k < METRIC_COUNT; k++) o.vec[k] = (o.vec[k] as number) + (this.vec[k] as number);
+    o.positions += this.positions;
+    for (let r = 0; r < REASON_COUNT; r++) o.unpriced[r] = (o.unpriced[r] as number) + (this.unpriced[r] as number);
+    o.stale += this.stale;
+  }
+
+  clear(): void {
+    this.staged = false;
+    this.vec.fill(0);
+    this.positions = 0;
+    this.unpriced.fill(0);
+    this.stale = 0;
+  }
+}
+
 /** The nodes one (desk, book, underlying, tenor) combination contributes to. */
 export class NodeSet {
   readonly nodes: Node[];
+  readonly pending = new Pending();
   constructor(
     readonly desk: string,
     readonly book: string,

@@ -21,22 +21,3 @@ export function compensatedAdd(sum: Float64Array, comp: Float64Array, k: number,
   else comp[k] = (comp[k] as number) + (x - t + s);
   sum[k] = t;
 }
-
-/** A single compensated accumulator, for position sizes and costs of a holding. */
-export class CompensatedSum {
-  private s = 0;
-  private c = 0;
-  add(x: number): void {
-    const t = this.s + x;
-    if (Math.abs(this.s) >= Math.abs(x)) this.c += this.s - t + x;
-    else this.c += x - t + this.s;
-    this.s = t;
-  }
-  get value(): number {
-    return this.s + this.c;
-  }
-  reset(): void {
-    this.s = 0;
-    this.c = 0;
-  }
-}
