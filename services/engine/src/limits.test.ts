@@ -38,6 +38,14 @@ describe('LimitMonitor', () => {
     expect(a?.ts).toBe('2026-01-05T00:00:00.000Z');
   });
 
+  it('stamps alerts with the exposure asOf when no time is given', () => {
+    const m = new LimitMonitor();
+    m.set(vegaLimit('L1'));
+    const [a] = m.check('desk=ORCHARD', { ...values({ vega: 5000 }), asOf: '2026-03-02T09:00:00.250Z' });
+    expect(a?.ts).toBe('2026-03-02T09:00:00.250Z');
+    expect(() => m.check('desk=ORCHARD', values({ vega: 0 }))).toThrow(/no time given/);
+  });
+
   it('puts the alerts of one node in limitId order', () => {
     const m = new LimitMonitor();
     m.set(vegaLimit('L-b'));

@@ -1,7 +1,7 @@
 // The limit book and its alert state machine, independent of how exposures are computed: the engine
 // feeds it per-partition nodes, the aggregation stage feeds it summed nodes, and both get the same
 // alerts for the same values.
-import { formatTs, nodeKey } from '@keelson/shared-types';
+import { formatTs, nodeKey, parseTs } from '@keelson/shared-types';
 import type { AlertLevel, AlertMsg, LimitMsg, Metric } from '@keelson/shared-types';
 import { boundFor, nextLevel, transitionState, utilization } from './levels.ts';
 
@@ -109,13 +109,18 @@ export class LimitMonitor {
     return [...this.byScope.keys()].sort();
   }
 
-  /** Checks every limit on a node; alerts in limitId order. */
-  check(nodeKeyStr: string, values: MetricValues, tsMs: number): AlertMsg[] {
+  /**
+   * Checks every limit on a node; alerts in limitId order, stamped `tsMs`, or the exposure's own
+   * `asOf` when no time is given (an aggregation stage checking summed exposures).
+   */
+  check(nodeKeyStr: string, values: MetricValues & { asOf?: string }, tsMs?: number): AlertMsg[] {
     const ids = this.byScope.get(nodeKeyStr);
     if (!ids) return [];
+    const at = tsMs ?? (values.asOf !== undefined ? parseTs(values.asOf) : Number.NaN);
+    if (!Number.isFinite(at)) throw new RangeError(`LimitMonitor.check(${nodeKeyStr}): no time given and no asOf on the values`);
     const out: AlertMsg[] = [];
     for (const id of ids) {
-      const a = this.checkLimit(id, values, tsMs);
+      const a = this.checkLimit(id, values, at);
       if (a) out.push(a);
     }
     return out;
