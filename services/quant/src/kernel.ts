@@ -12,13 +12,15 @@
 // discount factors are reused while tau, r and b repeat. The second Gaussian comes free from
 // S* e^{(b-r)tau} n(d1) = K e^{-r tau} n(d2).
 
-import { gaussian, normCdfWithGaussian } from './normal.ts';
+import { normCdfWithGaussian } from './normal.ts';
 import type { GreeksBatch, OptionBatch } from './types.ts';
 
 const INV_SQRT_2PI = 0.3989422804014327;
 const PER_POINT = 0.01;
 const PER_POINT_SQ = 1e-4;
 const PER_DAY = 1 / 365;
+const VELTKAMP = 134217729; // 2^27 + 1, as in normal.ts
+const GAUSS_CUTOFF = 40; // exp(-800) is 0 in double
 
 export const PAYOFF_VANILLA = 0;
 export const PAYOFF_CASH = 1;
@@ -115,17 +117,25 @@ export function valueRange(batch: OptionBatch, out: GreeksBatch, from: number, t
     const d1 = (Math.log(s / k) + (b + 0.5 * vol * vol) * tau) * iVst;
     const d2 = d1 - vst;
     // Take the Gaussian at whichever of d1, d2 is nearer 0 (it cannot underflow while the other
-    // still matters) and scale it by F/K = sd/kd to get the other.
-    let g1: number;
-    let g2: number;
-    if ((d1 < 0 ? -d1 : d1) <= (d2 < 0 ? -d2 : d2)) {
-      g1 = gaussian(d1);
-      g2 = (g1 * sd) / kd;
-    } else {
-      g2 = gaussian(d2);
-      g1 = (g2 * kd) / sd;
+    // still matters) and scale it by F/K = sd/kd to get the other. The Gaussian is normal.ts's
+    // gaussian() written out here: V8's inlining budget for this loop goes to the two CDFs.
+    const near1 = (d1 < 0 ? -d1 : d1) <= (d2 < 0 ? -d2 : d2);
+    const dn = near1 ? (d1 < 0 ? -d1 : d1) : d2 < 0 ? -d2 : d2;
+    let gn = 0;
+    if (dn <= GAUSS_CUTOFF) {
+      const c = VELTKAMP * dn;
+      const dh = c - (c - dn);
+      const dl = dn - dh;
+      const hi = dn * dn;
+      gn = Math.exp(-0.5 * hi) * (1 - 0.5 * (dh * dh - hi + 2 * dh * dl + dl * dl));
     }
+    const g1 = near1 ? gn : (gn * kd) / sd;
+    const g2 = near1 ? (gn * sd) / kd : gn;
     const bv = b * iVst;
+    // The two CDF values, each computed only where its payoff needs it; two call sites only, so
+    // V8 inlines the CDF here instead of boxing doubles across a call.
+    const cdf1 = payoff !== PAYOFF_CASH ? normCdfWithGaussian(phi * d1, g1) : 0;
+    const cdf2 = payoff !== PAYOFF_ASSET ? normCdfWithGaussian(phi * d2, g2) : 0;
 
     let price: number;
     let delta: number;
@@ -139,8 +149,6 @@ export function valueRange(batch: OptionBatch, out: GreeksBatch, from: number, t
 
     if (payoff === PAYOFF_VANILLA) {
       const n1 = INV_SQRT_2PI * g1;
-      const cdf1 = normCdfWithGaussian(phi * d1, g1);
-      const cdf2 = normCdfWithGaussian(phi * d2, g2);
       const p = phi * (sd * cdf1 - kd * cdf2);
       price = p > 0 ? p : 0; // rounding can leave a worthless wing a hair below zero
       const qn = dfQ * n1;
@@ -154,7 +162,6 @@ export function valueRange(batch: OptionBatch, out: GreeksBatch, from: number, t
       ddeltadt = phi * (b - r) * dfQ * cdf1 + qn * (bv - d2 * half);
     } else if (payoff === PAYOFF_CASH) {
       const n2 = INV_SQRT_2PI * g2;
-      const cdf2 = normCdfWithGaussian(phi * d2, g2);
       const a = cash * dfR;
       const an = phi * a * n2; // phi A e^{-r tau} n(d2)
       const dd2dt = bv - d1 * half; // d(d2)/dtau
@@ -169,7 +176,6 @@ export function valueRange(batch: OptionBatch, out: GreeksBatch, from: number, t
       ddeltadt = -delta * (r + d2 * dd2dt + half);
     } else {
       const n1 = INV_SQRT_2PI * g1;
-      const cdf1 = normCdfWithGaussian(phi * d1, g1);
       const qn = phi * dfQ * n1; // phi e^{(b-r) tau} n(d1)
       const dd1dt = bv - d2 * half; // d(d1)/dtau
       price = sd * cdf1;
