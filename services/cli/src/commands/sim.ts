@@ -147,6 +147,28 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
   }
 }
 
+/**
+ * Where an invalid line goes: as routeMalformed decides (the topic its type names), with the key
+ * that topic is keyed by when the line has it. A compacted topic refuses records without a key, so
+ * a keyless line goes to trades instead, where the engine dead-letters it like any other.
+ */
+function routePoison(
+  line: string,
+  deps: TapeDeps,
+): { topic: string; record: { key: string | null; value: string } } {
+  const routed = deps.routeMalformed(line);
+  let key = routed.record.key;
+  try {
+    const o = JSON.parse(line) as Record<string, unknown>;
+    for (const f of ['underlying', 'currency', 'limitId'])
+      if (key === null && typeof o[f] === 'string') key = o[f] as string;
+  } catch {
+    // not JSON: no key to find
+  }
+  if (key === null) return { topic: 'trades', record: { key: null, value: line } };
+  return { topic: routed.topic, record: { key, value: line } };
+}
+
 interface TapeDeps {
   decodeInput: typeof import('@keelson/shared-types').decodeInput;
   inputKey: typeof import('@keelson/shared-types').inputKey;
@@ -170,7 +192,7 @@ export async function publishTape(
     const d = deps.decodeInput(line);
     const { topic, record } = d.ok
       ? { topic: deps.inputTopic(d.msg) as string, record: { key: deps.inputKey(d.msg), value: line } }
-      : deps.routeMalformed(line);
+      : routePoison(line, deps);
     if (topic !== runTopic && run.length) {
       await bus.publish(runTopic, run);
       run = [];
