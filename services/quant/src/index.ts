@@ -5,6 +5,7 @@ export { normCdf, normPdf } from './normal.ts';
 export { MS_PER_YEAR, yearFraction } from './time.ts';
 export { priceOption, validateOptionInputs } from './bsm.ts';
 export { impliedVol, impliedVolBounds, ImpliedVolError } from './implied.ts';
+export type { ImpliedVolInputs } from './implied.ts';
 export type { ZeroCurve } from './curve.ts';
 export { zeroRate, discountFactor } from './curve.ts';
 export type { VolGrid } from './surface.ts';
