@@ -5,7 +5,10 @@ import { spawn, type ChildProcess } from 'node:child_process';
 import { fileURLToPath } from 'node:url';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createRequire } from 'node:module';
+import { createServer, type AddressInfo } from 'node:net';
+import { PassThrough } from 'node:stream';
 import type { ExposureMsg } from '@keelson/shared-types';
+import { run } from '../services/cli/src/commands/run.ts';
 
 interface Family {
   name: string;
@@ -160,4 +163,50 @@ describe('keelson run (embedded default)', () => {
     expect(lines.length).toBeGreaterThan(0);
     expect(JSON.parse(lines.at(-1)!)).toMatchObject({ msg: 'stopped' });
   }, 20_000);
+});
+
+describe('keelson run: refusing bad configuration', () => {
+  function io() {
+    let out = '';
+    let err = '';
+    const stdout = new PassThrough();
+    const stderr = new PassThrough();
+    stdout.on('data', (d: Buffer) => (out += d.toString()));
+    stderr.on('data', (d: Buffer) => (err += d.toString()));
+    return { io: { stdin: new PassThrough(), stdout, stderr }, out: () => out, err: () => err };
+  }
+
+  it.each([
+    [['--port', '70000'], "--port must be <= 65535, got '70000'"],
+    [['--speed=-2'], "--speed must be a number > 0, got '-2'"],
+    [['--duration', 'soon'], "--duration must be a number > 0, got 'soon'"],
+    [['--reporting-currency', 'usd'], "--reporting-currency must be three upper-case letters, got 'usd'"],
+    [['--no-such-option'], "Unknown option '--no-such-option'"],
+  ])('%j exits 1 naming the option', async (argv, message) => {
+    const t = io();
+    const prev = process.env.KAFKA_BROKERS;
+    delete process.env.KAFKA_BROKERS;
+    try {
+      expect(await run(argv, t.io)).toBe(1);
+    } finally {
+      if (prev !== undefined) process.env.KAFKA_BROKERS = prev;
+    }
+    expect(t.err()).toContain(message);
+  });
+
+  it('exits 1 with a clear message when the port is taken', async () => {
+    const blocker = createServer();
+    await new Promise<void>((r) => blocker.listen(0, '127.0.0.1', () => r()));
+    const port = (blocker.address() as AddressInfo).port;
+    const t = io();
+    const prev = process.env.KAFKA_BROKERS;
+    delete process.env.KAFKA_BROKERS;
+    try {
+      expect(await run(['--port', String(port), '--quiet', '--log-level', 'silent'], t.io)).toBe(1);
+    } finally {
+      if (prev !== undefined) process.env.KAFKA_BROKERS = prev;
+      blocker.close();
+    }
+    expect(t.err()).toContain(`127.0.0.1:${port} is already in use (try --port 0)`);
+  });
 });

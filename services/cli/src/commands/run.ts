@@ -19,14 +19,15 @@ embedded options:
   --speed X                simulated market moves X times faster than real time (default 1)
   --underlyings N          simulated underlyings (simulator default when unset)
   --trades N               initial simulated book size (simulator default when unset)
-  --duration SECONDS       stop by itself after this long
+  --duration SECONDS       stop by itself this long after becoming ready
   --decay-interval SECONDS revalue the whole book this often for time decay (default 60; 0 = never)
   --publish-interval MS    exposures coalesced per node and published at most this often (default 100)
   --stale-after SECONDS    a spot older than this marks its positions stale (default 5)
   --reporting-currency CCY (default USD)
   --log-level LEVEL        pino level: fatal, error, warn, info, debug, trace (default info)
   --quiet                  no live summary on stdout
-  --brokers LIST           host:port,... run on Kafka instead (see the Kafka runner's --help)
+  --brokers LIST           host:port,... run on Kafka instead ('keelson run --brokers LIST --help'
+                           lists the Kafka options)
   -h, --help
 `;
 
@@ -58,26 +59,18 @@ function brokersFrom(argv: string[]): string | undefined {
 }
 
 async function runKafka(argv: string[], io: CommandIo, brokers: string): Promise<number> {
-  const bus = (await import('@keelson/bus')) as {
-    runOnKafka?: (opts: { argv: string[]; io: CommandIo; brokers: string }) => Promise<number>;
-  };
-  if (typeof bus.runOnKafka !== 'function') {
-    io.stderr.write(
-      `keelson run: brokers given (${brokers}) but this build has no Kafka runner (@keelson/bus does not export runOnKafka).\n` +
-        `Unset KAFKA_BROKERS and omit --brokers to run embedded.\n`,
-    );
-    return 1;
-  }
-  return bus.runOnKafka({ argv, io, brokers });
+  // The Kafka runner parses its own options (roles, clock, group, topic prefix, security).
+  const { runOnKafka } = await import('@keelson/bus');
+  return runOnKafka({ argv, io, brokers });
 }
 
 export async function run(argv: string[], io: CommandIo): Promise<number> {
+  const brokers = brokersFrom(argv);
+  if (brokers) return runKafka(argv, io, brokers);
   if (argv.includes('-h') || argv.includes('--help')) {
     io.stdout.write(HELP);
     return 0;
   }
-  const brokers = brokersFrom(argv);
-  if (brokers) return runKafka(argv, io, brokers);
 
   let values: Record<string, string | boolean | undefined>;
   try {
