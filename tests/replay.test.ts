@@ -31,7 +31,11 @@ async function replay(args: string[]): Promise<{ code: number; out: string; err:
   return { code, out, err };
 }
 
-const lines = (s: string): unknown[] => s.split('\n').filter((l) => l !== '').map((l) => JSON.parse(l) as unknown);
+const lines = (s: string): unknown[] =>
+  s
+    .split('\n')
+    .filter((l) => l !== '')
+    .map((l) => JSON.parse(l) as unknown);
 
 describe('keelson replay harbour-morning.jsonl', async () => {
   const dir = await mkdtemp(join(tmpdir(), 'keelson-replay-'));
@@ -58,7 +62,8 @@ describe('keelson replay harbour-morning.jsonl', async () => {
 
   it('writes contract messages only', () => {
     for (const e of exposures) expect(exposureSchema.safeParse(e).success).toBe(true);
-    for (const a of alerts) expect((a.type === 'alert' ? alertSchema : staleFeedSchema).safeParse(a).success).toBe(true);
+    for (const a of alerts)
+      expect((a.type === 'alert' ? alertSchema : staleFeedSchema).safeParse(a).success).toBe(true);
     for (const r of rejected) expect(rejectedSchema.safeParse(r).success).toBe(true);
   });
 
@@ -68,7 +73,13 @@ describe('keelson replay harbour-morning.jsonl', async () => {
     expect(n.pv / 1000).toBeCloseTo(blackScholes(42, 40, 0.5, 0.2, 0.1, 'call'), 6); // npm black-scholes
     expect(n.pnl).toBeCloseTo(n.pv - 4500, 9);
     expect(n.delta! / 1000).toBeCloseTo(0.7791, 4); // Hull: N(d1)
-    expect(n).toMatchObject({ positions: 1, unpriced: {}, stale: false, asOf: '2026-03-02T09:00:24.000Z', currency: 'USD' });
+    expect(n).toMatchObject({
+      positions: 1,
+      unpriced: {},
+      stale: false,
+      asOf: '2026-03-02T09:00:24.000Z',
+      currency: 'USD',
+    });
   });
 
   it('converts the GBP position at the latest GBPUSD and keeps the reference-less one unpriced', () => {
@@ -78,7 +89,13 @@ describe('keelson replay harbour-morning.jsonl', async () => {
     expect(node('underlying=GANNET').pnl).toBeCloseTo(130, 9);
     expect(node('underlying=PETREL')).toMatchObject({ positions: 1, unpriced: { 'no-reference': 1 }, pv: 0 });
     const firm = node('firm');
-    expect(firm).toMatchObject({ positions: 3, unpriced: { 'no-reference': 1 }, delta: null, gamma: null, stale: false });
+    expect(firm).toMatchObject({
+      positions: 3,
+      unpriced: { 'no-reference': 1 },
+      delta: null,
+      gamma: null,
+      stale: false,
+    });
     expect(firm.pv).toBeCloseTo(node('underlying=OSPREY').pv + 3250, 9);
   });
 
@@ -100,7 +117,11 @@ describe('keelson replay harbour-morning.jsonl', async () => {
   });
 
   it('walks the delta limit through raised, escalated, eased, cleared, with stale feeds in order', () => {
-    const brief = alerts.map((a) => (a.type === 'alert' ? `${a.alertId} ${a.state} ${a.severity} @${a.ts.slice(11, 19)}` : `${a.underlying} stale ${a.state} @${a.ts.slice(11, 19)}`));
+    const brief = alerts.map((a) =>
+      a.type === 'alert'
+        ? `${a.alertId} ${a.state} ${a.severity} @${a.ts.slice(11, 19)}`
+        : `${a.underlying} stale ${a.state} @${a.ts.slice(11, 19)}`,
+    );
     expect(brief).toEqual([
       'L-OSPREY-DELTA#1 raised warning @09:00:01',
       'L-OSPREY-DELTA#1 escalated breach @09:00:01',
@@ -145,7 +166,9 @@ describe('keelson replay harbour-morning.jsonl', async () => {
 
   it('runs the same through `npx keelson replay` as a child process', async () => {
     const child = await mkdtemp(join(tmpdir(), 'keelson-replay-'));
-    const { stdout } = await promisify(execFile)('npx', ['keelson', 'replay', TAPE, '--out', child], { cwd: join(import.meta.dirname, '..') });
+    const { stdout } = await promisify(execFile)('npx', ['keelson', 'replay', TAPE, '--out', child], {
+      cwd: join(import.meta.dirname, '..'),
+    });
     expect(stdout).toMatch(/22 lines, 18 accepted, 1 duplicates, 3 rejected; 12 nodes/);
     expect(await readFile(join(child, 'exposures.jsonl'), 'utf8')).toBe(exposuresText);
   });

@@ -6,17 +6,44 @@ import fc from 'fast-check';
 import type { ExposureMsg, InputMsg } from '@keelson/shared-types';
 import { ManualClock } from './clock.ts';
 import { RiskEngine } from './engine.ts';
-import { DAY, T0, YEAR, acmeMarket, flatCurve, iso, limit, msg, spot, trade, underlying } from './test-support.ts';
+import {
+  DAY,
+  T0,
+  YEAR,
+  acmeMarket,
+  flatCurve,
+  iso,
+  limit,
+  msg,
+  spot,
+  trade,
+  underlying,
+} from './test-support.ts';
 import type { TradeSpec } from './test-support.ts';
 
-const METRIC_KEYS = ['pv', 'pnl', 'delta', 'cashDelta', 'gamma', 'cashGamma', 'vega', 'theta', 'rho'] as const;
+const METRIC_KEYS = [
+  'pv',
+  'pnl',
+  'delta',
+  'cashDelta',
+  'gamma',
+  'cashGamma',
+  'vega',
+  'theta',
+  'rho',
+] as const;
 
 /** Node-by-node equality to a relative tolerance (the sums are reached by different routes). */
 function expectSameSnapshot(a: ExposureMsg[], b: ExposureMsg[], tol = 1e-9): void {
   expect(a.map((x) => x.nodeKey)).toEqual(b.map((x) => x.nodeKey));
   a.forEach((x, i) => {
     const y = b[i] as ExposureMsg;
-    expect({ k: x.nodeKey, p: x.positions, u: x.unpriced, s: x.stale }).toEqual({ k: y.nodeKey, p: y.positions, u: y.unpriced, s: y.stale });
+    expect({ k: x.nodeKey, p: x.positions, u: x.unpriced, s: x.stale }).toEqual({
+      k: y.nodeKey,
+      p: y.positions,
+      u: y.unpriced,
+      s: y.stale,
+    });
     for (const m of METRIC_KEYS) {
       const u = x[m];
       const v = y[m];
@@ -24,7 +51,9 @@ function expectSameSnapshot(a: ExposureMsg[], b: ExposureMsg[], tol = 1e-9): voi
         expect(u).toBe(v);
         continue;
       }
-      expect(Math.abs(u - v), `${x.nodeKey} ${m}: ${u} vs ${v}`).toBeLessThanOrEqual(tol * Math.max(1, Math.abs(u), Math.abs(v)));
+      expect(Math.abs(u - v), `${x.nodeKey} ${m}: ${u} vs ${v}`).toBeLessThanOrEqual(
+        tol * Math.max(1, Math.abs(u), Math.abs(v)),
+      );
     }
   });
 }
@@ -43,7 +72,7 @@ const versionEvent = fc.record({
   price: fc.double({ min: 0, max: 20, noNaN: true }),
 });
 
-describe('property: arrival order of a trade\'s versions', () => {
+describe("property: arrival order of a trade's versions", () => {
   it('leaves the state of the highest version, whatever the order and the duplicates', () => {
     fc.assert(
       fc.property(
@@ -51,14 +80,18 @@ describe('property: arrival order of a trade\'s versions', () => {
           fc.tuple(
             fc.constant(events),
             // an arrival order with some versions sent twice
-            fc.shuffledSubarray(
-              [...events.keys(), ...events.keys()],
-              { minLength: events.length * 2, maxLength: events.length * 2 },
-            ),
+            fc.shuffledSubarray([...events.keys(), ...events.keys()], {
+              minLength: events.length * 2,
+              maxLength: events.length * 2,
+            }),
           ),
         ),
         ([events, order]) => {
-          const spec = (v: number): TradeSpec => ({ id: 'T1', version: v + 1, ...(events[v] as (typeof events)[number]) });
+          const spec = (v: number): TradeSpec => ({
+            id: 'T1',
+            version: v + 1,
+            ...(events[v] as (typeof events)[number]),
+          });
           const shuffled = new RiskEngine({ clock: 'event' });
           for (const m of acmeMarket()) shuffled.apply(m, 'm');
           for (const v of order) shuffled.apply(trade(spec(v)), 't');
@@ -99,20 +132,54 @@ const op = fc.oneof(
       price: fc.double({ min: 0, max: 30, noNaN: true }),
     }),
   },
-  { weight: 4, arbitrary: fc.record({ kind: fc.constant('spot' as const), und: fc.integer({ min: 0, max: 2 }), move: fc.double({ min: -0.05, max: 0.05, noNaN: true }) }) },
-  { weight: 2, arbitrary: fc.record({ kind: fc.constant('curve' as const), ccy: fc.constantFrom('USD', 'EUR'), rate: fc.double({ min: -0.01, max: 0.08, noNaN: true }) }) },
-  { weight: 1, arbitrary: fc.record({ kind: fc.constant('surface' as const), und: fc.integer({ min: 0, max: 2 }), vol: fc.double({ min: 0.05, max: 0.8, noNaN: true }) }) },
-  { weight: 2, arbitrary: fc.record({ kind: fc.constant('advance' as const), ms: fc.integer({ min: 0, max: 6 * DAY }) }) },
+  {
+    weight: 4,
+    arbitrary: fc.record({
+      kind: fc.constant('spot' as const),
+      und: fc.integer({ min: 0, max: 2 }),
+      move: fc.double({ min: -0.05, max: 0.05, noNaN: true }),
+    }),
+  },
+  {
+    weight: 2,
+    arbitrary: fc.record({
+      kind: fc.constant('curve' as const),
+      ccy: fc.constantFrom('USD', 'EUR'),
+      rate: fc.double({ min: -0.01, max: 0.08, noNaN: true }),
+    }),
+  },
+  {
+    weight: 1,
+    arbitrary: fc.record({
+      kind: fc.constant('surface' as const),
+      und: fc.integer({ min: 0, max: 2 }),
+      vol: fc.double({ min: 0.05, max: 0.8, noNaN: true }),
+    }),
+  },
+  {
+    weight: 2,
+    arbitrary: fc.record({ kind: fc.constant('advance' as const), ms: fc.integer({ min: 0, max: 6 * DAY }) }),
+  },
   {
     weight: 1,
     arbitrary: fc.record({
       kind: fc.constant('limit' as const),
       id: fc.integer({ min: 0, max: 3 }),
-      scope: fc.constantFrom<Record<string, string>>({}, { desk: 'ORCHARD' }, { tenor: '0-30d' }, { tenor: '31-90d' }, { book: 'B2' }, { desk: 'QUARRY', underlying: 'ACME' }),
+      scope: fc.constantFrom<Record<string, string>>(
+        {},
+        { desk: 'ORCHARD' },
+        { tenor: '0-30d' },
+        { tenor: '31-90d' },
+        { book: 'B2' },
+        { desk: 'QUARRY', underlying: 'ACME' },
+      ),
       max: fc.double({ min: 1, max: 5000, noNaN: true }),
     }),
   },
-  { weight: 1, arbitrary: fc.record({ kind: fc.constant('limit-remove' as const), id: fc.integer({ min: 0, max: 3 }) }) },
+  {
+    weight: 1,
+    arbitrary: fc.record({ kind: fc.constant('limit-remove' as const), id: fc.integer({ min: 0, max: 3 }) }),
+  },
 );
 
 type Op = typeof op extends fc.Arbitrary<infer T> ? T : never;
@@ -147,7 +214,13 @@ function runOps(ops: Op[], clock: ManualClock, e: RiskEngine) {
         break;
       }
       case 'curve':
-        m = msg({ type: 'curve', currency: o.ccy, tenors: [0.1, 1, 5], zeroRates: [o.rate, o.rate + 0.005, o.rate + 0.01], ts: iso(now) });
+        m = msg({
+          type: 'curve',
+          currency: o.ccy,
+          tenors: [0.1, 1, 5],
+          zeroRates: [o.rate, o.rate + 0.005, o.rate + 0.01],
+          ts: iso(now),
+        });
         curves.set(o.ccy, m);
         break;
       case 'surface': {
@@ -168,7 +241,10 @@ function runOps(ops: Op[], clock: ManualClock, e: RiskEngine) {
         break;
       }
       case 'limit':
-        m = limit({ limitId: `L${o.id}`, scope: o.scope, metric: o.scope.underlying ? 'delta' : 'vega', max: o.max }, now);
+        m = limit(
+          { limitId: `L${o.id}`, scope: o.scope, metric: o.scope.underlying ? 'delta' : 'vega', max: o.max },
+          now,
+        );
         limits.set(o.id, m);
         break;
       case 'limit-remove':
@@ -198,7 +274,8 @@ function runOps(ops: Op[], clock: ManualClock, e: RiskEngine) {
         };
         m = trade(spec);
         const prev = live.get(o.id);
-        if (!prev || o.version > prev.version) live.set(o.id, { version: o.version, msg: o.action === 'cancel' ? null : m });
+        if (!prev || o.version > prev.version)
+          live.set(o.id, { version: o.version, msg: o.action === 'cancel' ? null : m });
         break;
       }
     }
@@ -223,7 +300,9 @@ describe('property: incremental sums', () => {
             const v = n[m];
             if (v === null) return;
             const want = r ? (r.values[k] as number) : 0;
-            expect(Math.abs(v - want), `${n.nodeKey} ${m}`).toBeLessThanOrEqual(1e-9 * Math.max(1, Math.abs(want)));
+            expect(Math.abs(v - want), `${n.nodeKey} ${m}`).toBeLessThanOrEqual(
+              1e-9 * Math.max(1, Math.abs(want)),
+            );
           });
         }
       }),
@@ -247,7 +326,8 @@ describe('property: incremental sums', () => {
         for (const m of st.surfaces.values()) fresh.apply(m, 's');
         // the latest spot of each underlying, stamped when it was taken (staleness must agree)
         for (const [u, x] of st.spots) fresh.apply(spot(u, x.price, x.ts), 'spot');
-        for (const m of [...st.limits.keys()].sort().map((k) => st.limits.get(k) as InputMsg)) fresh.apply(m, 'l');
+        for (const m of [...st.limits.keys()].sort().map((k) => st.limits.get(k) as InputMsg))
+          fresh.apply(m, 'l');
         for (const { msg: m } of st.live.values()) if (m) fresh.apply(m, 't');
         fresh.revalueAll();
         expectSameSnapshot(e.snapshot(), fresh.snapshot(), 1e-9);

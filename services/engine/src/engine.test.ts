@@ -126,13 +126,27 @@ describe('trade lifecycle', () => {
     feed(e, [trade({ id: 'T1', version: 2, action: 'amend', book: 'B2', quantity: 5 })]);
     const d = e.drain();
     const old = d.exposures.find((x) => x.nodeKey === 'desk=ORCHARD/book=B1');
-    expect(old).toMatchObject({ pv: 0, pnl: 0, vega: 0, positions: 0, unpriced: {}, delta: null, gamma: null });
+    expect(old).toMatchObject({
+      pv: 0,
+      pnl: 0,
+      vega: 0,
+      positions: 0,
+      unpriced: {},
+      delta: null,
+      gamma: null,
+    });
     const oldU = d.exposures.find((x) => x.nodeKey === 'desk=ORCHARD/book=B1/underlying=ACME');
     expect(oldU).toMatchObject({ pv: 0, delta: 0, gamma: 0, positions: 0 });
     expect(d.exposures.map((x) => x.nodeKey)).toContain('desk=ORCHARD/book=B2');
     const keys = e.snapshot().map((x) => x.nodeKey);
     expect(keys).not.toContain('desk=ORCHARD/book=B1');
-    expect(keys).toEqual(['desk=ORCHARD', 'desk=ORCHARD/book=B2', 'desk=ORCHARD/book=B2/underlying=ACME', 'firm', 'underlying=ACME']);
+    expect(keys).toEqual([
+      'desk=ORCHARD',
+      'desk=ORCHARD/book=B2',
+      'desk=ORCHARD/book=B2/underlying=ACME',
+      'firm',
+      'underlying=ACME',
+    ]);
     // the firm did not move
     expect(mustNode(e, 'firm').positions).toBe(1);
     // nothing published twice for the same node in one drain, and in nodeKey order
@@ -187,14 +201,37 @@ describe('trade lifecycle', () => {
 describe('linear positions', () => {
   it('equity: pv = q m S, pnl = q m (S - price), delta = q m, other Greeks 0', () => {
     const e = engine();
-    feed(e, [underlying('ACME'), spot('ACME', 42), trade({ id: 'L', linear: true, quantity: 3, multiplier: 10, price: 40 })]);
-    expect(mustNode(e, 'underlying=ACME')).toMatchObject({ pv: 1260, pnl: 60, delta: 30, cashDelta: 1260, gamma: 0, vega: 0, theta: 0, rho: 0, unpriced: {} });
+    feed(e, [
+      underlying('ACME'),
+      spot('ACME', 42),
+      trade({ id: 'L', linear: true, quantity: 3, multiplier: 10, price: 40 }),
+    ]);
+    expect(mustNode(e, 'underlying=ACME')).toMatchObject({
+      pv: 1260,
+      pnl: 60,
+      delta: 30,
+      cashDelta: 1260,
+      gamma: 0,
+      vega: 0,
+      theta: 0,
+      rho: 0,
+      unpriced: {},
+    });
   });
 
   it('future: pv = pnl = q m (F - price)', () => {
     const e = engine();
-    feed(e, [underlying('RYEF', { kind: 'future' }), spot('RYEF', 510), trade({ id: 'F', underlying: 'RYEF', linear: true, quantity: -2, multiplier: 50, price: 500 })]);
-    expect(mustNode(e, 'underlying=RYEF')).toMatchObject({ pv: -1000, pnl: -1000, delta: -100, cashDelta: -51000 });
+    feed(e, [
+      underlying('RYEF', { kind: 'future' }),
+      spot('RYEF', 510),
+      trade({ id: 'F', underlying: 'RYEF', linear: true, quantity: -2, multiplier: 50, price: 500 }),
+    ]);
+    expect(mustNode(e, 'underlying=RYEF')).toMatchObject({
+      pv: -1000,
+      pnl: -1000,
+      delta: -100,
+      cashDelta: -51000,
+    });
   });
 });
 
@@ -216,7 +253,11 @@ describe('unpriced positions: reasons in precedence order, left out of the sums,
 
   it('needs the conversion spot for a currency other than the reporting one (no-fx, last)', () => {
     const e = engine();
-    feed(e, [underlying('BRIO', { currency: 'EUR' }), spot('BRIO', 20), trade({ id: 'E', underlying: 'BRIO', linear: true })]);
+    feed(e, [
+      underlying('BRIO', { currency: 'EUR' }),
+      spot('BRIO', 20),
+      trade({ id: 'E', underlying: 'BRIO', linear: true }),
+    ]);
     expect(mustNode(e, 'firm')).toMatchObject({ unpriced: { 'no-fx': 1 }, pv: 0, positions: 1 });
   });
 
@@ -243,7 +284,10 @@ describe('unpriced positions: reasons in precedence order, left out of the sums,
   it('keeps unpriced positions out of the sums but in the counts', () => {
     const e = engine();
     feed(e, hullMarket());
-    feed(e, [trade({ id: 'OK', strike: 40, expiryMs: HALF_YEAR }), trade({ id: 'NOV', underlying: 'NOVOL', strike: 40 })]);
+    feed(e, [
+      trade({ id: 'OK', strike: 40, expiryMs: HALF_YEAR }),
+      trade({ id: 'NOV', underlying: 'NOVOL', strike: 40 }),
+    ]);
     feed(e, [underlying('NOVOL'), spot('NOVOL', 42)]);
     const firm = mustNode(e, 'firm');
     expect(firm.positions).toBe(2);
@@ -268,7 +312,16 @@ describe('FX conversion into the reporting currency', () => {
   it('multiplies by the pair CCYREP', () => {
     const e = engine();
     brio(e);
-    const unit = priceOption({ right: 'call', payoff: 'vanilla', spot: 20, strike: 20, tau: 0.5, vol: 0.25, rate: 0.03, carry: 0.03 });
+    const unit = priceOption({
+      right: 'call',
+      payoff: 'vanilla',
+      spot: 20,
+      strike: 20,
+      tau: 0.5,
+      vol: 0.25,
+      rate: 0.03,
+      carry: 0.03,
+    });
     feed(e, [spot('EURUSD', 1.2)]);
     const n = mustNode(e, 'underlying=BRIO');
     expect(n.pv).toBeCloseTo((100 * unit.price + 10 * 20) * 1.2, 9);
@@ -280,7 +333,12 @@ describe('FX conversion into the reporting currency', () => {
 
   it('divides by the pair REPCCY', () => {
     const e = engine({ reportingCurrency: 'EUR' });
-    feed(e, [underlying('ACME'), spot('ACME', 30), trade({ id: 'U', linear: true, quantity: 4 }), spot('EURUSD', 1.25)]);
+    feed(e, [
+      underlying('ACME'),
+      spot('ACME', 30),
+      trade({ id: 'U', linear: true, quantity: 4 }),
+      spot('EURUSD', 1.25),
+    ]);
     expect(mustNode(e, 'firm')).toMatchObject({ pv: (4 * 30) / 1.25, currency: 'EUR' });
   });
 
@@ -313,15 +371,40 @@ describe('models', () => {
       flatSurface('EURUSD', 0.08),
       trade({ id: 'X', underlying: 'EURUSD', strike: 1.12, quantity: 1e6 }),
     ]);
-    const g = priceOption({ right: 'call', payoff: 'vanilla', spot: 1.1, strike: 1.12, tau: 0.5, vol: 0.08, rate: 0.04, carry: 0.02 });
+    const g = priceOption({
+      right: 'call',
+      payoff: 'vanilla',
+      spot: 1.1,
+      strike: 1.12,
+      tau: 0.5,
+      vol: 0.08,
+      rate: 0.04,
+      carry: 0.02,
+    });
     expect(mustNode(e, 'firm').pv).toBeCloseTo(1e6 * g.price, 6);
     expect(mustNode(e, 'firm').rho).toBeCloseTo(1e6 * g.rho, 6);
   });
 
   it('futures options: Black-76 (carry 0) on the futures price', () => {
     const e = engine();
-    feed(e, [underlying('RYEF', { kind: 'future' }), spot('RYEF', 500), flatCurve('USD', 0.05), flatSurface('RYEF', 0.3), trade({ id: 'F', underlying: 'RYEF', strike: 480, right: 'put' })]);
-    const g = priceOption({ right: 'put', payoff: 'vanilla', spot: 500, strike: 480, tau: 0.5, vol: 0.3, rate: 0.05, carry: 0, rhoCarry: false });
+    feed(e, [
+      underlying('RYEF', { kind: 'future' }),
+      spot('RYEF', 500),
+      flatCurve('USD', 0.05),
+      flatSurface('RYEF', 0.3),
+      trade({ id: 'F', underlying: 'RYEF', strike: 480, right: 'put' }),
+    ]);
+    const g = priceOption({
+      right: 'put',
+      payoff: 'vanilla',
+      spot: 500,
+      strike: 480,
+      tau: 0.5,
+      vol: 0.3,
+      rate: 0.05,
+      carry: 0,
+      rhoCarry: false,
+    });
     const n = mustNode(e, 'firm');
     expect(n.pv).toBeCloseTo(g.price, 9);
     // Black-76 with b fixed: rho = -T V (a known property of the model), per 1%
@@ -330,15 +413,36 @@ describe('models', () => {
 
   it('equity discrete dividends: escrowed S*, and rho moves the dividend PVs with the curve', () => {
     const ex = T0 + YEAR / 4;
-    const divs = { dividends: [{ exDate: iso(ex), amount: 2 }, { exDate: iso(T0 + YEAR), amount: 5 }], dividendYield: 0.01 };
+    const divs = {
+      dividends: [
+        { exDate: iso(ex), amount: 2 },
+        { exDate: iso(T0 + YEAR), amount: 5 },
+      ],
+      dividendYield: 0.01,
+    };
     const mk = (rate: number): RiskEngine => {
       const e = engine();
-      feed(e, [underlying('ACME', divs), flatCurve('USD', rate), flatSurface('ACME', 0.2), spot('ACME', 42), trade({ id: 'C', strike: 40, expiryMs: HALF_YEAR })]);
+      feed(e, [
+        underlying('ACME', divs),
+        flatCurve('USD', rate),
+        flatSurface('ACME', 0.2),
+        spot('ACME', 42),
+        trade({ id: 'C', strike: 40, expiryMs: HALF_YEAR }),
+      ]);
       return e;
     };
     const e = mk(0.1);
     const sStar = 42 - 2 * Math.exp(-0.1 * 0.25); // the dividend after expiry does not count
-    const g = priceOption({ right: 'call', payoff: 'vanilla', spot: sStar, strike: 40, tau: 0.5, vol: 0.2, rate: 0.1, carry: 0.09 });
+    const g = priceOption({
+      right: 'call',
+      payoff: 'vanilla',
+      spot: sStar,
+      strike: 40,
+      tau: 0.5,
+      vol: 0.2,
+      rate: 0.1,
+      carry: 0.09,
+    });
     const n = mustNode(e, 'firm');
     expect(n.pv).toBeCloseTo(g.price, 12);
     expect(n.cashDelta).toBeCloseTo(g.delta * 42, 12); // the quoted spot, not S*
@@ -401,7 +505,8 @@ describe('tenor buckets', () => {
       [366, '366d+'],
     ];
     feed(e, acmeMarket());
-    for (const [days, bucket] of edges) feed(e, [limit({ limitId: `L-${bucket}`, scope: { tenor: bucket }, metric: 'vega', max: 1e9 })]);
+    for (const [, bucket] of edges)
+      feed(e, [limit({ limitId: `L-${bucket}`, scope: { tenor: bucket }, metric: 'vega', max: 1e9 })]);
     edges.forEach(([days], i) => feed(e, [trade({ id: `T${i}`, expiryMs: T0 + days * DAY })]));
     const count = (b: string): number => mustNode(e, `tenor=${b}`).positions;
     expect(['0-30d', '31-90d', '91-180d', '181-365d', '366d+'].map(count)).toEqual([1, 1, 2, 2, 1]);
@@ -428,7 +533,15 @@ describe('stale feeds', () => {
       { underlying: 'ZED', lastTickMs: T0 + 5001, stale: false },
     ]);
     feed(e, [spot('ACME', 100, T0 + 6000)]);
-    expect(e.drain().alerts).toEqual([{ type: 'stale-feed', underlying: 'ACME', state: 'cleared', lastTick: iso(T0 + 6000), ts: iso(T0 + 6000) }]);
+    expect(e.drain().alerts).toEqual([
+      {
+        type: 'stale-feed',
+        underlying: 'ACME',
+        state: 'cleared',
+        lastTick: iso(T0 + 6000),
+        ts: iso(T0 + 6000),
+      },
+    ]);
     expect(mustNode(e, 'firm').stale).toBe(false);
   });
 
@@ -447,7 +560,15 @@ describe('limits on nodes', () => {
     feed(e, [underlying('ACME'), spot('ACME', 100), trade({ id: 'L', linear: true, quantity: 900 })]);
     feed(e, [limit({ limitId: 'L-D', scope: { underlying: 'ACME' }, metric: 'delta', max: 1000 })]);
     expect(e.drain().alerts).toEqual([
-      expect.objectContaining({ alertId: 'L-D#1', state: 'raised', severity: 'warning', value: 900, utilization: 0.9, bound: 1000, nodeKey: 'underlying=ACME' }),
+      expect.objectContaining({
+        alertId: 'L-D#1',
+        state: 'raised',
+        severity: 'warning',
+        value: 900,
+        utilization: 0.9,
+        bound: 1000,
+        nodeKey: 'underlying=ACME',
+      }),
     ]);
     feed(e, [trade({ id: 'L', version: 2, action: 'amend', linear: true, quantity: 1000 })]);
     expect(e.drain().alerts.map((a) => (a as AlertMsg).state)).toEqual(['escalated']);
@@ -456,7 +577,9 @@ describe('limits on nodes', () => {
     feed(e, [trade({ id: 'L', version: 4, action: 'amend', linear: true, quantity: 949 })]);
     expect(e.drain().alerts.map((a) => (a as AlertMsg).state)).toEqual(['eased']);
     feed(e, [trade({ id: 'L', version: 5, action: 'cancel' })]);
-    expect(e.drain().alerts).toEqual([expect.objectContaining({ state: 'cleared', alertId: 'L-D#1', value: 0 })]);
+    expect(e.drain().alerts).toEqual([
+      expect.objectContaining({ state: 'cleared', alertId: 'L-D#1', value: 0 }),
+    ]);
     expect(alerts.length).toBe(4);
   });
 
@@ -483,18 +606,26 @@ describe('limits on nodes', () => {
     feed(e, [limit({ limitId: 'L1', scope: {}, metric: 'pv', max: 104 })]); // 0.96: still breach
     expect(e.drain().alerts).toEqual([]);
     feed(e, [limit({ limitId: 'L1', scope: {}, metric: 'pv', max: 120 })]); // 0.833: eases, same episode
-    expect(e.drain().alerts).toEqual([expect.objectContaining({ state: 'eased', alertId: 'L1#1', previous: 'breach' })]);
+    expect(e.drain().alerts).toEqual([
+      expect.objectContaining({ state: 'eased', alertId: 'L1#1', previous: 'breach' }),
+    ]);
     expect(e.openAlerts().map((a) => a.alertId)).toEqual(['L1#1']);
     feed(e, [msg({ type: 'limit-remove', limitId: 'L1', ts: iso(T0) })]);
-    expect(e.drain().alerts).toEqual([expect.objectContaining({ state: 'cleared', severity: 'ok', alertId: 'L1#1' })]);
+    expect(e.drain().alerts).toEqual([
+      expect.objectContaining({ state: 'cleared', severity: 'ok', alertId: 'L1#1' }),
+    ]);
     expect(e.openAlerts()).toEqual([]);
     expect(e.apply(msg({ type: 'limit-remove', limitId: 'L1', ts: iso(T0) }), 's')).toBe('duplicate');
   });
 
   it('keeps a node that a limit names even without positions (zeros), and drops it when the limit goes', () => {
     const e = engine();
-    feed(e, [limit({ limitId: 'L-V', scope: { desk: 'ORCHARD', underlying: 'ACME' }, metric: 'vega', max: 10 })]);
-    expect(e.snapshot()).toEqual([expect.objectContaining({ nodeKey: 'desk=ORCHARD/underlying=ACME', positions: 0, vega: 0, delta: 0 })]);
+    feed(e, [
+      limit({ limitId: 'L-V', scope: { desk: 'ORCHARD', underlying: 'ACME' }, metric: 'vega', max: 10 }),
+    ]);
+    expect(e.snapshot()).toEqual([
+      expect.objectContaining({ nodeKey: 'desk=ORCHARD/underlying=ACME', positions: 0, vega: 0, delta: 0 }),
+    ]);
     feed(e, [...acmeMarket(), trade({ id: 'C', quantity: 1000 })]);
     const n = mustNode(e, 'desk=ORCHARD/underlying=ACME');
     expect(n.vega).toBeCloseTo(mustNode(e, 'firm').vega, 12);
@@ -502,13 +633,20 @@ describe('limits on nodes', () => {
     e.drain();
     feed(e, [msg({ type: 'limit-remove', limitId: 'L-V', ts: iso(T0) })]);
     const d = e.drain();
-    expect(d.exposures).toEqual([expect.objectContaining({ nodeKey: 'desk=ORCHARD/underlying=ACME', positions: 0, vega: 0 })]);
+    expect(d.exposures).toEqual([
+      expect.objectContaining({ nodeKey: 'desk=ORCHARD/underlying=ACME', positions: 0, vega: 0 }),
+    ]);
     expect(nodeOf(e, 'desk=ORCHARD/underlying=ACME')).toBeUndefined();
   });
 
   it('fills a scope named after its positions exist (book alone, any desk)', () => {
     const e = engine();
-    feed(e, [...acmeMarket(), trade({ id: 'A', desk: 'ORCHARD', book: 'SHARED' }), trade({ id: 'B', desk: 'QUARRY', book: 'SHARED' }), trade({ id: 'C', desk: 'QUARRY', book: 'OTHER' })]);
+    feed(e, [
+      ...acmeMarket(),
+      trade({ id: 'A', desk: 'ORCHARD', book: 'SHARED' }),
+      trade({ id: 'B', desk: 'QUARRY', book: 'SHARED' }),
+      trade({ id: 'C', desk: 'QUARRY', book: 'OTHER' }),
+    ]);
     feed(e, [limit({ limitId: 'L-S', scope: { book: 'SHARED' }, metric: 'pv', max: 1e9 })]);
     const s = mustNode(e, 'book=SHARED');
     expect(s.positions).toBe(2);
@@ -520,14 +658,25 @@ describe('incremental revaluation', () => {
   function counting(): { e: RiskEngine; revals: number[]; changed: number[] } {
     const revals: number[] = [];
     const changed: number[] = [];
-    const observer: EngineObserver = { revaluations: (n) => revals.push(n), exposuresChanged: (n) => changed.push(n) };
+    const observer: EngineObserver = {
+      revaluations: (n) => revals.push(n),
+      exposuresChanged: (n) => changed.push(n),
+    };
     return { e: engine({ observer }), revals, changed };
   }
 
   it('a spot revalues only its underlying; a curve only its currency; a trade only its instrument', () => {
     const { e, revals } = counting();
-    feed(e, [...acmeMarket(), underlying('BRIO', { currency: 'EUR' }), flatCurve('EUR', 0.02), flatSurface('BRIO', 0.3), spot('BRIO', 20), spot('EURUSD', 1.1)]);
-    for (const k of [90, 100, 110]) feed(e, [trade({ id: `A${k}`, strike: k }), trade({ id: `A${k}b`, strike: k, book: 'B2' })]);
+    feed(e, [
+      ...acmeMarket(),
+      underlying('BRIO', { currency: 'EUR' }),
+      flatCurve('EUR', 0.02),
+      flatSurface('BRIO', 0.3),
+      spot('BRIO', 20),
+      spot('EURUSD', 1.1),
+    ]);
+    for (const k of [90, 100, 110])
+      feed(e, [trade({ id: `A${k}`, strike: k }), trade({ id: `A${k}b`, strike: k, book: 'B2' })]);
     for (const k of [18, 22]) feed(e, [trade({ id: `B${k}`, underlying: 'BRIO', strike: k })]);
     revals.length = 0;
     feed(e, [spot('ACME', 101, T0 + 1)]);
@@ -545,10 +694,22 @@ describe('incremental revaluation', () => {
 
   it('a spot tick of one underlying changes only the nodes holding it', () => {
     const { e } = counting();
-    feed(e, [...acmeMarket(), underlying('ZED'), spot('ZED', 5), trade({ id: 'A' }), trade({ id: 'Z', underlying: 'ZED', linear: true, desk: 'QUARRY' })]);
+    feed(e, [
+      ...acmeMarket(),
+      underlying('ZED'),
+      spot('ZED', 5),
+      trade({ id: 'A' }),
+      trade({ id: 'Z', underlying: 'ZED', linear: true, desk: 'QUARRY' }),
+    ]);
     e.drain();
     feed(e, [spot('ZED', 6, T0 + 1)]);
-    expect(e.drain().exposures.map((x) => x.nodeKey)).toEqual(['desk=QUARRY', 'desk=QUARRY/book=B1', 'desk=QUARRY/book=B1/underlying=ZED', 'firm', 'underlying=ZED']);
+    expect(e.drain().exposures.map((x) => x.nodeKey)).toEqual([
+      'desk=QUARRY',
+      'desk=QUARRY/book=B1',
+      'desk=QUARRY/book=B1/underlying=ZED',
+      'firm',
+      'underlying=ZED',
+    ]);
   });
 });
 
@@ -556,7 +717,12 @@ describe('inputs', () => {
   it('rejects undecodable input with its source, raw text and the current tape time', () => {
     const e = engine();
     feed(e, [spot('ACME', 1, T0 + 7)]);
-    expect(e.ingest('{"type":"spot","underlying":"ACME","price":-1,"ts":"2026-01-05T00:00:00Z"}', 'tape.jsonl line 2')).toBe('rejected');
+    expect(
+      e.ingest(
+        '{"type":"spot","underlying":"ACME","price":-1,"ts":"2026-01-05T00:00:00Z"}',
+        'tape.jsonl line 2',
+      ),
+    ).toBe('rejected');
     expect(e.ingest('not json', 'tape.jsonl line 3')).toBe('rejected');
     const r = e.drain().rejected;
     expect(r.map((x) => [x.source, x.ts])).toEqual([
@@ -591,7 +757,12 @@ describe('observer and stats', () => {
         rejected: (r) => rejected.push(r.source),
       },
     });
-    feed(e, [underlying('ACME'), spot('ACME', 100), trade({ id: 'L', linear: true, quantity: 10 }), trade({ id: 'L', linear: true, quantity: 10 })]);
+    feed(e, [
+      underlying('ACME'),
+      spot('ACME', 100),
+      trade({ id: 'L', linear: true, quantity: 10 }),
+      trade({ id: 'L', linear: true, quantity: 10 }),
+    ]);
     feed(e, [limit({ limitId: 'L1', scope: {}, metric: 'pv', max: 500 })]);
     e.ingest('{"type":"spot"}', 'r1');
     e.ingest('}{', 'r2');
@@ -609,10 +780,26 @@ describe('observer and stats', () => {
     expect(alerts).toEqual(['L1#1']);
     expect(stale).toEqual(['ACME:raised']);
     expect(rejected).toEqual(['r1', 'r2']);
-    expect(e.stats()).toEqual({ positions: 1, instruments: 1, unpriced: {}, revaluations: 1, valuationMs: T0 + 6000 });
+    expect(e.stats()).toEqual({
+      positions: 1,
+      instruments: 1,
+      unpriced: {},
+      revaluations: 1,
+      valuationMs: T0 + 6000,
+    });
     expect(e.utilizations()).toEqual([{ limitId: 'L1', utilization: 2 }]);
     expect(e.limits()).toEqual([
-      { limitId: 'L1', nodeKey: 'firm', metric: 'pv', max: 500, warnAt: 0.8, hysteresis: 0.05, value: 1000, utilization: 2, level: 'breach' },
+      {
+        limitId: 'L1',
+        nodeKey: 'firm',
+        metric: 'pv',
+        max: 500,
+        warnAt: 0.8,
+        hysteresis: 0.05,
+        value: 1000,
+        utilization: 2,
+        level: 'breach',
+      },
     ]);
   });
 });

@@ -12,14 +12,7 @@ import {
   zeroRate,
 } from '@keelson/quant';
 import type { GreeksBatch, OptionBatch } from '@keelson/quant';
-import {
-  METRICS,
-  TENORS,
-  UNPRICED_REASONS,
-  decodeInput,
-  formatTs,
-  tenorBucket,
-} from '@keelson/shared-types';
+import { METRICS, TENORS, UNPRICED_REASONS, decodeInput, formatTs, tenorBucket } from '@keelson/shared-types';
 import type {
   AlertMsg,
   CurveMsg,
@@ -290,7 +283,9 @@ export class RiskEngine {
   constructor(opts: EngineOptions) {
     this.reportingCurrency = opts.reportingCurrency ?? 'USD';
     if (!/^[A-Z]{3}$/.test(this.reportingCurrency)) {
-      throw new RangeError(`reportingCurrency must be a three-letter upper-case code, got ${JSON.stringify(this.reportingCurrency)}`);
+      throw new RangeError(
+        `reportingCurrency must be a three-letter upper-case code, got ${JSON.stringify(this.reportingCurrency)}`,
+      );
     }
     this.staleAfterMs = opts.staleAfterMs ?? 5000;
     if (!(this.staleAfterMs >= 0) || !Number.isFinite(this.staleAfterMs)) {
@@ -381,7 +376,8 @@ export class RiskEngine {
 
   feeds(): { underlying: string; lastTickMs: number; stale: boolean }[] {
     const out: { underlying: string; lastTickMs: number; stale: boolean }[] = [];
-    for (const u of this.undList) if (u.hasSpot) out.push({ underlying: u.name, lastTickMs: u.lastTickMs, stale: u.stale });
+    for (const u of this.undList)
+      if (u.hasSpot) out.push({ underlying: u.name, lastTickMs: u.lastTickMs, stale: u.stale });
     return out.sort((a, b) => (a.underlying < b.underlying ? -1 : a.underlying > b.underlying ? 1 : 0));
   }
 
@@ -395,7 +391,8 @@ export class RiskEngine {
       }
     }
     let instruments = 0;
-    for (let i = 0; i < this.inst.count; i++) if ((this.instHoldings[i] as Holding[]).length > 0) instruments++;
+    for (let i = 0; i < this.inst.count; i++)
+      if ((this.instHoldings[i] as Holding[]).length > 0) instruments++;
     return {
       positions: this.liveTrades,
       instruments,
@@ -422,7 +419,14 @@ export class RiskEngine {
       if (!live) continue;
       const h = live.holding;
       const reason = this.reasonOf(h);
-      if (reason === PRICED) this.contribution(h.inst, live.qm, live.cost, this.fxRate((h.und.ref as RefData).currency) as number, v);
+      if (reason === PRICED)
+        this.contribution(
+          h.inst,
+          live.qm,
+          live.cost,
+          this.fxRate((h.und.ref as RefData).currency) as number,
+          v,
+        );
       else v.fill(0);
       const set = this.cube.nodeSet(h.desk, h.book, h.und.name, this.inst.tenor[h.inst] as number);
       for (const n of set.nodes) {
@@ -555,7 +559,9 @@ export class RiskEngine {
       kind: msg.kind,
       currency: msg.currency,
       dividendYield: msg.dividendYield,
-      dividends: msg.dividends.map((d) => ({ exMs: msOf(d.exDate), amount: d.amount })).sort((a, b) => a.exMs - b.exMs),
+      dividends: msg.dividends
+        .map((d) => ({ exMs: msOf(d.exDate), amount: d.amount }))
+        .sort((a, b) => a.exMs - b.exMs),
       base: msg.kind === 'fx' ? msg.underlying.slice(0, 3) : undefined,
     };
     u.ref = ref;
@@ -766,7 +772,8 @@ export class RiskEngine {
     this.outAlerts.push(e);
     this.observer?.staleFeed?.(e);
     // the stale flag of the nodes its priced positions sit in (no revaluation)
-    if (refresh) for (const i of u.instruments) for (const h of this.instHoldings[i] as Holding[]) this.updateHolding(h);
+    if (refresh)
+      for (const i of u.instruments) for (const h of this.instHoldings[i] as Holding[]) this.updateHolding(h);
   }
 
   // ------------------------------------------------------------------ revaluation
@@ -832,7 +839,13 @@ export class RiskEngine {
       if (tau <= 0) {
         // expired: intrinsic on the quoted spot, zero Greeks, until a trade event removes it
         I.status[i] = PRICED;
-        I.price[i] = intrinsic(I.right[i] as number, I.payoff[i] as number, s, I.strike[i] as number, I.cashAmount[i] as number);
+        I.price[i] = intrinsic(
+          I.right[i] as number,
+          I.payoff[i] as number,
+          s,
+          I.strike[i] as number,
+          I.cashAmount[i] as number,
+        );
         I.delta[i] = 0;
         I.gamma[i] = 0;
         I.vega[i] = 0;
@@ -907,7 +920,14 @@ export class RiskEngine {
         const theta = o.theta[j] as number;
         // rho with the dividend PVs moving with the curve: + delta x dS*/dr x 0.01, dS*/dr = sum tau_i PV_i
         const rho = (o.rho[j] as number) + delta * (this.batchDivRho[j] as number) * 0.01;
-        if (!(Number.isFinite(price) && Number.isFinite(delta) && Number.isFinite(gamma) && Number.isFinite(vega) && Number.isFinite(theta) && Number.isFinite(rho))) {
+        if (!(
+          Number.isFinite(price) &&
+          Number.isFinite(delta) &&
+          Number.isFinite(gamma) &&
+          Number.isFinite(vega) &&
+          Number.isFinite(theta) &&
+          Number.isFinite(rho)
+        )) {
           // never publish a non-finite number: the quant core promises finite results for valid
           // inputs, so this is a defect, and the position is left out rather than valued wrongly
           I.status[i] = R_NO_VOL;
@@ -942,7 +962,8 @@ export class RiskEngine {
   private rescaleCurrency(ccy: string): void {
     const set = this.byCurrency.get(ccy);
     if (!set) return;
-    for (const u of set) for (const i of u.instruments) for (const h of this.instHoldings[i] as Holding[]) this.updateHolding(h);
+    for (const u of set)
+      for (const i of u.instruments) for (const h of this.instHoldings[i] as Holding[]) this.updateHolding(h);
   }
 
   /** Conversion rate of a currency into the reporting one: CCYREP multiplies, REPCCY divides. */
@@ -994,14 +1015,27 @@ export class RiskEngine {
   private updateHolding(h: Holding): void {
     const reason = this.reasonOf(h);
     const v = this.scratch;
-    if (reason === PRICED) this.contribution(h.inst, h.qm, h.cost, this.fxRate((h.und.ref as RefData).currency) as number, v);
+    if (reason === PRICED)
+      this.contribution(h.inst, h.qm, h.cost, this.fxRate((h.und.ref as RefData).currency) as number, v);
     else v.fill(0);
     const stale = reason === PRICED && h.und.stale;
     const tenor = this.inst.tenor[h.inst] as number;
     // node sets are updated in place when limit scopes come and go, so one found before stays right
-    const set = reason === EMPTY ? null : h.set !== null && h.set.tenor === tenor ? h.set : this.cube.nodeSet(h.desk, h.book, h.und.name, tenor);
+    const set =
+      reason === EMPTY
+        ? null
+        : h.set !== null && h.set.tenor === tenor
+          ? h.set
+          : this.cube.nodeSet(h.desk, h.book, h.und.name, tenor);
     const trades = h.trades;
-    if (set === h.set && reason === h.reason && stale === h.stale && trades === h.appliedTrades && sameVec(v, h.vec)) return;
+    if (
+      set === h.set &&
+      reason === h.reason &&
+      stale === h.stale &&
+      trades === h.appliedTrades &&
+      sameVec(v, h.vec)
+    )
+      return;
     if (set === h.set && set !== null) {
       this.stage(set, h.vec, v, h.appliedTrades, trades, h.reason, reason, h.stale, stale);
     } else {
@@ -1034,7 +1068,8 @@ export class RiskEngine {
       this.stagedSets.push(set);
     }
     const pv = p.vec;
-    for (let k = 0; k < METRIC_COUNT; k++) pv[k] = (pv[k] as number) + ((newVec[k] as number) - (oldVec[k] as number));
+    for (let k = 0; k < METRIC_COUNT; k++)
+      pv[k] = (pv[k] as number) + ((newVec[k] as number) - (oldVec[k] as number));
     p.positions += newTrades - oldTrades;
     if (oldReason >= 0) p.unpriced[oldReason] = (p.unpriced[oldReason] as number) - oldTrades;
     if (newReason >= 0) p.unpriced[newReason] = (p.unpriced[newReason] as number) + newTrades;
@@ -1140,7 +1175,8 @@ function applyPending(n: Node, p: Pending): void {
     if (d !== 0) n.add(k, d);
   }
   n.positions += p.positions;
-  for (let r = 0; r < p.unpriced.length; r++) n.unpriced[r] = (n.unpriced[r] as number) + (p.unpriced[r] as number);
+  for (let r = 0; r < p.unpriced.length; r++)
+    n.unpriced[r] = (n.unpriced[r] as number) + (p.unpriced[r] as number);
   n.staleCount += p.stale;
   if (n.positions === 0) n.clearSums();
 }

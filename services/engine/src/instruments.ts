@@ -79,7 +79,10 @@ export class InstrumentTable {
   }
 
   private grow(cap: number): void {
-    const g = <T extends Int32Array | Uint8Array | Int8Array | Float64Array>(a: T, C: new (n: number) => T): T => {
+    const g = <T extends Int32Array | Uint8Array | Int8Array | Float64Array>(
+      a: T,
+      C: new (n: number) => T,
+    ): T => {
       const b = new C(cap);
       b.set(a);
       return b;

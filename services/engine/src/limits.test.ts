@@ -10,7 +10,18 @@ const vegaLimit = (id: string, o: Record<string, unknown> = {}): LimitMsg =>
   limit({ limitId: id, scope: { desk: 'ORCHARD' }, metric: 'vega', max: 1000, ...o }) as LimitMsg;
 
 function values(v: Partial<Record<Metric, number>>): MetricValues {
-  return { pv: 0, pnl: 0, delta: null, cashDelta: 0, gamma: null, cashGamma: 0, vega: 0, theta: 0, rho: 0, ...v };
+  return {
+    pv: 0,
+    pnl: 0,
+    delta: null,
+    cashDelta: 0,
+    gamma: null,
+    cashGamma: 0,
+    vega: 0,
+    theta: 0,
+    rho: 0,
+    ...v,
+  };
 }
 
 describe('LimitMonitor', () => {
@@ -18,7 +29,11 @@ describe('LimitMonitor', () => {
     const m = new LimitMonitor();
     m.set(vegaLimit('L1'));
     const path = [500, 850, 1200, 960, 900, 700, 100, 820, 1000];
-    const alerts = path.flatMap((v, i) => m.check('desk=ORCHARD', values({ vega: v }), T0 + i).map((a) => [v, a.state, a.severity, a.previous, a.alertId]));
+    const alerts = path.flatMap((v, i) =>
+      m
+        .check('desk=ORCHARD', values({ vega: v }), T0 + i)
+        .map((a) => [v, a.state, a.severity, a.previous, a.alertId]),
+    );
     expect(alerts).toEqual([
       [850, 'raised', 'warning', 'ok', 'L1#1'],
       [1200, 'escalated', 'breach', 'warning', 'L1#1'],
@@ -34,7 +49,15 @@ describe('LimitMonitor', () => {
     const m = new LimitMonitor();
     m.set(vegaLimit('L1', { min: -500 }));
     const [a] = m.check('desk=ORCHARD', values({ vega: -600 }), T0);
-    expect(a).toMatchObject({ value: -600, bound: -500, utilization: 1.2, severity: 'breach', state: 'raised', metric: 'vega', nodeKey: 'desk=ORCHARD' });
+    expect(a).toMatchObject({
+      value: -600,
+      bound: -500,
+      utilization: 1.2,
+      severity: 'breach',
+      state: 'raised',
+      metric: 'vega',
+      nodeKey: 'desk=ORCHARD',
+    });
     expect(a?.ts).toBe('2026-01-05T00:00:00.000Z');
   });
 
@@ -51,7 +74,11 @@ describe('LimitMonitor', () => {
     m.set(vegaLimit('L-b'));
     m.set(vegaLimit('L-c'));
     m.set(vegaLimit('L-a'));
-    expect(m.check('desk=ORCHARD', values({ vega: 2000 }), T0).map((a) => a.limitId)).toEqual(['L-a', 'L-b', 'L-c']);
+    expect(m.check('desk=ORCHARD', values({ vega: 2000 }), T0).map((a) => a.limitId)).toEqual([
+      'L-a',
+      'L-b',
+      'L-c',
+    ]);
   });
 
   it('keeps the level through a replacement and rechecks against the new bounds', () => {
@@ -61,7 +88,11 @@ describe('LimitMonitor', () => {
     m.set(vegaLimit('L1', { max: 1150 })); // 1100/1150 = 0.9565 >= 0.95: still breach
     expect(m.checkLimit('L1', values({ vega: 1100 }), T0)).toBeUndefined();
     m.set(vegaLimit('L1', { max: 2000 })); // 0.55: clears, same episode
-    expect(m.checkLimit('L1', values({ vega: 1100 }), T0)).toMatchObject({ state: 'cleared', alertId: 'L1#1', previous: 'breach' });
+    expect(m.checkLimit('L1', values({ vega: 1100 }), T0)).toMatchObject({
+      state: 'cleared',
+      alertId: 'L1#1',
+      previous: 'breach',
+    });
   });
 
   it('clears an open episode on removal, at the last value', () => {
@@ -72,7 +103,14 @@ describe('LimitMonitor', () => {
     const { alerts, scopeKey } = m.remove('L1', T0 + 5);
     expect(scopeKey).toBe('desk=ORCHARD');
     expect(alerts).toEqual([
-      expect.objectContaining({ state: 'cleared', severity: 'ok', previous: 'warning', value: 900, alertId: 'L1#1', ts: '2026-01-05T00:00:00.005Z' }),
+      expect.objectContaining({
+        state: 'cleared',
+        severity: 'ok',
+        previous: 'warning',
+        value: 900,
+        alertId: 'L1#1',
+        ts: '2026-01-05T00:00:00.005Z',
+      }),
     ]);
     expect(m.openAlerts()).toEqual([]);
     expect(m.scopes()).toEqual([]);

@@ -117,7 +117,8 @@ export class LimitMonitor {
     const ids = this.byScope.get(nodeKeyStr);
     if (!ids) return [];
     const at = tsMs ?? (values.asOf !== undefined ? parseTs(values.asOf) : Number.NaN);
-    if (!Number.isFinite(at)) throw new RangeError(`LimitMonitor.check(${nodeKeyStr}): no time given and no asOf on the values`);
+    if (!Number.isFinite(at))
+      throw new RangeError(`LimitMonitor.check(${nodeKeyStr}): no time given and no asOf on the values`);
     const out: AlertMsg[] = [];
     for (const id of ids) {
       const a = this.checkLimit(id, values, at);

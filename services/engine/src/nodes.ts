@@ -72,7 +72,8 @@ export class Pending {
   addInto(o: Pending): void {
     for (let k = 0; k < METRIC_COUNT; k++) o.vec[k] = (o.vec[k] as number) + (this.vec[k] as number);
     o.positions += this.positions;
-    for (let r = 0; r < REASON_COUNT; r++) o.unpriced[r] = (o.unpriced[r] as number) + (this.unpriced[r] as number);
+    for (let r = 0; r < REASON_COUNT; r++)
+      o.unpriced[r] = (o.unpriced[r] as number) + (this.unpriced[r] as number);
     o.stale += this.stale;
   }
 

@@ -9,8 +9,15 @@ import type { InputMsg } from '@keelson/shared-types';
 describe('exposureFromPartials', () => {
   const shared = acmeMarket();
   const zed: InputMsg[] = [underlying('ZED'), flatSurface('ZED', 0.4), spot('ZED', 50)];
-  const acmeTrades = [trade({ id: 'A1', quantity: 10 }), trade({ id: 'A2', right: 'put', book: 'B2', quantity: -4 }), trade({ id: 'A3', underlying: 'GHOST' })];
-  const zedTrades = [trade({ id: 'Z1', underlying: 'ZED', strike: 55, quantity: 7 }), trade({ id: 'Z2', underlying: 'ZED', linear: true, quantity: 100, price: 49 })];
+  const acmeTrades = [
+    trade({ id: 'A1', quantity: 10 }),
+    trade({ id: 'A2', right: 'put', book: 'B2', quantity: -4 }),
+    trade({ id: 'A3', underlying: 'GHOST' }),
+  ];
+  const zedTrades = [
+    trade({ id: 'Z1', underlying: 'ZED', strike: 55, quantity: 7 }),
+    trade({ id: 'Z2', underlying: 'ZED', linear: true, quantity: 100, price: 49 }),
+  ];
 
   it('adds the partitions of a node exactly as one engine would have', () => {
     const p0 = new RiskEngine({ clock: 'event' });
@@ -20,19 +27,34 @@ describe('exposureFromPartials', () => {
     feed(p1, [...shared, ...zed, ...zedTrades]);
     feed(all, [...shared, ...zed, ...acmeTrades, ...zedTrades]);
     const byKey = new Map<string, NodePartial[]>();
-    for (const p of [...p0.partials(), ...p1.partials()]) byKey.set(p.nodeKey, [...(byKey.get(p.nodeKey) ?? []), p]);
+    for (const p of [...p0.partials(), ...p1.partials()])
+      byKey.set(p.nodeKey, [...(byKey.get(p.nodeKey) ?? []), p]);
     const combined = [...byKey.keys()].sort().map((k) => exposureFromPartials(byKey.get(k) as NodePartial[]));
     const whole = all.snapshot();
     expect(combined.map((x) => x.nodeKey)).toEqual(whole.map((x) => x.nodeKey));
     combined.forEach((c, i) => {
       const w = whole[i]!;
-      const rest = (x: typeof c) => ({ k: x.nodeKey, n: x.node, p: x.positions, u: x.unpriced, s: x.stale, a: x.asOf, c: x.currency, d: x.delta === null });
+      const rest = (x: typeof c) => ({
+        k: x.nodeKey,
+        n: x.node,
+        p: x.positions,
+        u: x.unpriced,
+        s: x.stale,
+        a: x.asOf,
+        c: x.currency,
+        d: x.delta === null,
+      });
       expect(rest(c)).toEqual(rest(w));
       if (c.delta !== null) expect(c.delta).toBeCloseTo(w.delta as number, 9);
-      for (const m of ['pv', 'pnl', 'cashDelta', 'cashGamma', 'vega', 'theta', 'rho'] as const) expect(c[m]).toBeCloseTo(w[m], 9);
+      for (const m of ['pv', 'pnl', 'cashDelta', 'cashGamma', 'vega', 'theta', 'rho'] as const)
+        expect(c[m]).toBeCloseTo(w[m], 9);
     });
     expect(byKey.get('firm')?.length).toBe(2);
-    expect(combined.find((x) => x.nodeKey === 'firm')).toMatchObject({ positions: 5, unpriced: { 'no-reference': 1 }, delta: null });
+    expect(combined.find((x) => x.nodeKey === 'firm')).toMatchObject({
+      positions: 5,
+      unpriced: { 'no-reference': 1 },
+      delta: null,
+    });
   });
 
   it('refuses partials of different nodes', () => {

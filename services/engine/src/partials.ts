@@ -58,7 +58,9 @@ export function exposureFromPartials(parts: readonly NodePartial[]): ExposureMsg
   const unpriced: Record<string, number> = {};
   for (const p of parts) {
     if (p.nodeKey !== first.nodeKey || p.currency !== first.currency) {
-      throw new RangeError(`exposureFromPartials: mixed nodes ${first.nodeKey} (${first.currency}) and ${p.nodeKey} (${p.currency})`);
+      throw new RangeError(
+        `exposureFromPartials: mixed nodes ${first.nodeKey} (${first.currency}) and ${p.nodeKey} (${p.currency})`,
+      );
     }
     for (const m of METRICS) sums[m] += p.sums[m];
     positions += p.positions;

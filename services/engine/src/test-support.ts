@@ -23,7 +23,14 @@ export const spot = (name: string, price: number, ts = T0): InputMsg =>
 export const flatCurve = (currency: string, rate: number, ts = T0): InputMsg =>
   msg({ type: 'curve', currency, tenors: [1], zeroRates: [rate], ts: iso(ts) });
 export const flatSurface = (name: string, vol: number, ts = T0): InputMsg =>
-  msg({ type: 'vol-surface', underlying: name, expiries: ['2040-01-01T00:00:00Z'], strikes: [100], vols: [[vol]], ts: iso(ts) });
+  msg({
+    type: 'vol-surface',
+    underlying: name,
+    expiries: ['2040-01-01T00:00:00Z'],
+    strikes: [100],
+    vols: [[vol]],
+    ts: iso(ts),
+  });
 
 export interface TradeSpec {
   id: string;
@@ -46,7 +53,13 @@ export interface TradeSpec {
 
 export function trade(s: TradeSpec): InputMsg {
   const ts = iso(s.ts ?? T0);
-  const base = { type: 'trade', tradeId: s.id, version: s.version ?? 1, underlying: s.underlying ?? 'ACME', ts };
+  const base = {
+    type: 'trade',
+    tradeId: s.id,
+    version: s.version ?? 1,
+    underlying: s.underlying ?? 'ACME',
+    ts,
+  };
   if (s.action === 'cancel') return msg({ ...base, action: 'cancel' });
   const instrument = s.linear
     ? { kind: 'linear', multiplier: s.multiplier ?? 1 }
@@ -70,11 +83,17 @@ export function trade(s: TradeSpec): InputMsg {
   });
 }
 
-export const limit = (o: Record<string, unknown>, ts = T0): InputMsg => msg({ type: 'limit', ts: iso(ts), ...o });
+export const limit = (o: Record<string, unknown>, ts = T0): InputMsg =>
+  msg({ type: 'limit', ts: iso(ts), ...o });
 
 /** A market for ACME (USD equity, flat 10% curve, flat 20% vol, spot 100). */
 export function acmeMarket(ts = T0): InputMsg[] {
-  return [underlying('ACME', {}, ts), flatCurve('USD', 0.1, ts), flatSurface('ACME', 0.2, ts), spot('ACME', 100, ts)];
+  return [
+    underlying('ACME', {}, ts),
+    flatCurve('USD', 0.1, ts),
+    flatSurface('ACME', 0.2, ts),
+    spot('ACME', 100, ts),
+  ];
 }
 
 export function feed(e: RiskEngine, msgs: readonly InputMsg[]): string[] {
@@ -87,6 +106,12 @@ export function nodeOf(e: RiskEngine, key: string): ExposureMsg | undefined {
 
 export function mustNode(e: RiskEngine, key: string): ExposureMsg {
   const n = nodeOf(e, key);
-  if (!n) throw new Error(`no node ${key} in snapshot: ${e.snapshot().map((x) => x.nodeKey).join(', ')}`);
+  if (!n)
+    throw new Error(
+      `no node ${key} in snapshot: ${e
+        .snapshot()
+        .map((x) => x.nodeKey)
+        .join(', ')}`,
+    );
   return n;
 }

@@ -21,7 +21,10 @@ async function replay(args: string[]): Promise<{ code: number; out: string; err:
 async function tape(lines: object[] | string): Promise<string> {
   const dir = await mkdtemp(join(tmpdir(), 'keelson-tape-'));
   const p = join(dir, 'small.jsonl');
-  await writeFile(p, typeof lines === 'string' ? lines : lines.map((l) => JSON.stringify(l)).join('\n') + '\n');
+  await writeFile(
+    p,
+    typeof lines === 'string' ? lines : lines.map((l) => JSON.stringify(l)).join('\n') + '\n',
+  );
   return p;
 }
 
@@ -29,7 +32,19 @@ const T = '2026-03-02T09:00:00Z';
 const small = [
   { type: 'underlying', underlying: 'MARLIN', kind: 'equity', currency: 'EUR', ts: T },
   { type: 'spot', underlying: 'MARLIN', price: 8, ts: T },
-  { type: 'trade', tradeId: 'M1', version: 1, action: 'new', ts: T, desk: 'SHOAL', book: 'SH-1', underlying: 'MARLIN', instrument: { kind: 'linear' }, quantity: 10, price: 7 },
+  {
+    type: 'trade',
+    tradeId: 'M1',
+    version: 1,
+    action: 'new',
+    ts: T,
+    desk: 'SHOAL',
+    book: 'SH-1',
+    underlying: 'MARLIN',
+    instrument: { kind: 'linear' },
+    quantity: 10,
+    price: 7,
+  },
   { type: 'spot', underlying: 'EURUSD', price: 1.25, ts: '2026-03-02T09:00:03Z' },
 ];
 
@@ -46,8 +61,14 @@ describe('keelson replay: usage', () => {
     [['t.jsonl'], /missing --out DIR/],
     [['t.jsonl', '--out'], /--out needs a directory/],
     [['t.jsonl', '--out', 'd', '--bogus'], /unknown option --bogus/],
-    [['t.jsonl', '--out', 'd', '--reporting-currency', 'usd'], /--reporting-currency needs a three-letter upper-case code \(got "usd"\)/],
-    [['t.jsonl', '--out', 'd', '--stale-after', '-1'], /--stale-after needs a number of seconds >= 0 \(got "-1"\)/],
+    [
+      ['t.jsonl', '--out', 'd', '--reporting-currency', 'usd'],
+      /--reporting-currency needs a three-letter upper-case code \(got "usd"\)/,
+    ],
+    [
+      ['t.jsonl', '--out', 'd', '--stale-after', '-1'],
+      /--stale-after needs a number of seconds >= 0 \(got "-1"\)/,
+    ],
     [['t.jsonl', '--out', 'd', '--stale-after', 'soon'], /--stale-after needs a number/],
     [['a.jsonl', 'b.jsonl', '--out', 'd'], /one tape only/],
   ])('rejects %j with exit 1', async (args, reason) => {
@@ -67,7 +88,10 @@ describe('keelson replay: options', () => {
   it('values in the reporting currency asked for', async () => {
     const out = await mkdtemp(join(tmpdir(), 'keelson-out-'));
     expect((await replay([await tape(small), '--out', out, '--reporting-currency', 'EUR'])).code).toBe(0);
-    const firm = (await readFile(join(out, 'exposures.jsonl'), 'utf8')).split('\n').map((l) => (l ? JSON.parse(l) : null)).find((e) => e?.nodeKey === 'firm');
+    const firm = (await readFile(join(out, 'exposures.jsonl'), 'utf8'))
+      .split('\n')
+      .map((l) => (l ? JSON.parse(l) : null))
+      .find((e) => e?.nodeKey === 'firm');
     expect(firm).toMatchObject({ currency: 'EUR', pv: 80, pnl: 10 });
   });
 
@@ -75,7 +99,12 @@ describe('keelson replay: options', () => {
     const out = await mkdtemp(join(tmpdir(), 'keelson-out-'));
     expect((await replay([await tape(small), '--out', out])).code).toBe(0);
     const text = await readFile(join(out, 'exposures.jsonl'), 'utf8');
-    expect(JSON.parse(text.split('\n')[3] as string)).toMatchObject({ nodeKey: 'firm', currency: 'USD', pv: 100, stale: false });
+    expect(JSON.parse(text.split('\n')[3] as string)).toMatchObject({
+      nodeKey: 'firm',
+      currency: 'USD',
+      pv: 100,
+      stale: false,
+    });
     expect(await readFile(join(out, 'alerts.jsonl'), 'utf8')).toBe('');
     const out2 = await mkdtemp(join(tmpdir(), 'keelson-out-'));
     expect((await replay([await tape(small), '--out', out2, '--stale-after=2.5'])).code).toBe(0);
@@ -93,7 +122,10 @@ describe('keelson replay: options', () => {
     const out = await mkdtemp(join(tmpdir(), 'keelson-out-'));
     const r = await replay([p, '--out', out]);
     expect(r.out).toMatch(/3 lines, 1 accepted, 0 duplicates, 2 rejected; 0 nodes/);
-    const rejected = (await readFile(join(out, 'rejected.jsonl'), 'utf8')).trim().split('\n').map((l) => JSON.parse(l) as { source: string; raw: string });
+    const rejected = (await readFile(join(out, 'rejected.jsonl'), 'utf8'))
+      .trim()
+      .split('\n')
+      .map((l) => JSON.parse(l) as { source: string; raw: string });
     expect(rejected.map((x) => [x.source, x.raw])).toEqual([
       ['small.jsonl line 3', '{"type":"spot"}'],
       ['small.jsonl line 4', 'nope'],

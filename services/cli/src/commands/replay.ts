@@ -65,7 +65,9 @@ function parseArgs(argv: string[]): ReplayArgs | { help: true } | { error: strin
       case '--reporting-currency': {
         const v = value();
         if (v === undefined || !/^[A-Z]{3}$/.test(v)) {
-          return { error: `--reporting-currency needs a three-letter upper-case code (got ${v === undefined ? 'nothing' : JSON.stringify(v)})` };
+          return {
+            error: `--reporting-currency needs a three-letter upper-case code (got ${v === undefined ? 'nothing' : JSON.stringify(v)})`,
+          };
         }
         reportingCurrency = v;
         break;
@@ -74,7 +76,9 @@ function parseArgs(argv: string[]): ReplayArgs | { help: true } | { error: strin
         const v = value();
         const s = v === undefined ? Number.NaN : Number(v);
         if (v === undefined || v.trim() === '' || !Number.isFinite(s) || s < 0) {
-          return { error: `--stale-after needs a number of seconds >= 0 (got ${v === undefined ? 'nothing' : JSON.stringify(v)})` };
+          return {
+            error: `--stale-after needs a number of seconds >= 0 (got ${v === undefined ? 'nothing' : JSON.stringify(v)})`,
+          };
         }
         staleAfterMs = s * 1000;
         break;
