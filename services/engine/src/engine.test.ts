@@ -692,6 +692,26 @@ describe('incremental revaluation', () => {
     expect(revals).toEqual([2]);
   });
 
+  it('a booking at the time its instrument was last valued prices nothing and moves only its position', () => {
+    const { e, revals } = counting();
+    feed(e, [...hullMarket(), trade({ id: 'A', strike: 40, expiryMs: HALF_YEAR, book: 'B1' })]);
+    revals.length = 0;
+    e.drain();
+    feed(e, [trade({ id: 'B', strike: 40, expiryMs: HALF_YEAR, book: 'B2', quantity: 2 })]);
+    expect(revals).toEqual([]);
+    expect(e.drain().exposures.map((x) => x.nodeKey)).toEqual([
+      'desk=ORCHARD',
+      'desk=ORCHARD/book=B2',
+      'desk=ORCHARD/book=B2/underlying=ACME',
+      'firm',
+      'underlying=ACME',
+    ]);
+    expect(mustNode(e, 'desk=ORCHARD/book=B2').pv).toBeCloseTo(
+      2 * blackScholes(42, 40, 0.5, 0.2, 0.1, 'call'),
+      6,
+    );
+  });
+
   it('a spot tick of one underlying changes only the nodes holding it', () => {
     const { e } = counting();
     feed(e, [
