@@ -13,6 +13,12 @@ import { initTheme } from './theme.js';
 
 const $ = (id) => document.getElementById(id);
 
+/** Writes text only when it differs, so an unchanged header costs no layout. */
+function setText(id, text) {
+  const node = document.getElementById(id);
+  if (node.textContent !== text) node.textContent = text;
+}
+
 export function startBoard({ source } = {}) {
   initTheme($('theme-toggle'));
   const tree = new NodeTree();
@@ -120,9 +126,9 @@ export function startBoard({ source } = {}) {
       limitsView.render();
       const label = COLUMNS.find((c) => c.id === metricSelect.value)?.title ?? metricSelect.value;
       chart.draw(history.series.get(chartKey), chartKey, metricSelect.value, label);
-      $('chart-node').textContent = chartKey;
-      $('as-of').textContent = counters.lastAsOf ? clockTime(counters.lastAsOf) : '\u2013';
-      $('node-count').textContent = String(tree.byKey.size);
+      setText('chart-node', chartKey);
+      setText('as-of', counters.lastAsOf ? clockTime(counters.lastAsOf) : '\u2013');
+      setText('node-count', String(tree.byKey.size));
       let breach = 0;
       let warning = 0;
       let top = 0;
@@ -131,14 +137,17 @@ export function startBoard({ source } = {}) {
         else if (v.level === 'warning') warning++;
         top = Math.max(top, v.utilization);
       }
-      $('breach-count').textContent = String(breach);
-      $('warning-count').textContent = String(warning);
-      $('top-util').textContent = limits.views.size ? percent(top) : '\u2013';
+      setText('breach-count', String(breach));
+      setText('warning-count', String(warning));
+      setText('top-util', limits.views.size ? percent(top) : '\u2013');
       const quiet = [...counters.quiet.keys()].sort();
-      $('quiet-count').textContent = String(quiet.length);
-      $('quiet-list').textContent = quiet.length
-        ? quiet.slice(0, 8).join(', ') + (quiet.length > 8 ? ` +${quiet.length - 8}` : '')
-        : 'none';
+      setText('quiet-count', String(quiet.length));
+      setText(
+        'quiet-list',
+        quiet.length
+          ? quiet.slice(0, 8).join(', ') + (quiet.length > 8 ? ` +${quiet.length - 8}` : '')
+          : 'none',
+      );
       document.body.classList.toggle('has-breach', breach > 0);
     }
     counters.renderMs += performance.now() - started;

@@ -45,7 +45,7 @@ export class TreeView {
     this.shapeSeen = -1;
     this.activeKey = 'firm';
     this.forceBind = true;
-    this.seq = 0;
+    this.turn = 0;
 
     this.grid = el('div', 'grid', {
       role: 'treegrid',
@@ -125,11 +125,23 @@ export class TreeView {
     const viewH = this.body.clientHeight || 600;
     const need = Math.ceil(viewH / ROW_HEIGHT) + OVERSCAN * 2;
     while (this.slots.length < need) this.#slot();
-    const first = Math.max(0, Math.floor(this.body.scrollTop / ROW_HEIGHT) - OVERSCAN);
+    const top = Math.floor(this.body.scrollTop / ROW_HEIGHT);
+    const first = Math.max(0, top - OVERSCAN);
+    const lastVisible = top + Math.ceil(viewH / ROW_HEIGHT);
     const rebind = this.forceBind || this.scrolled;
-    for (let i = 0; i < this.slots.length; i++) {
+    // A batch of new figures is drawn over a few frames rather than in one: at most a third of the
+    // visible rows per frame, taking turns, so a 10 Hz feed never makes one frame do all the work.
+    // Overscan rows (out of view) wait until they come into view.
+    const budget = Math.max(8, Math.ceil((lastVisible - top) / 3));
+    let updated = 0;
+    const deferred = [];
+    const n = this.slots.length;
+    const start = this.turn % n;
+    for (let j = 0; j < n; j++) {
+      const i = (start + j) % n;
       const slot = this.slots[i];
-      const entry = rows[first + i];
+      const index = first + i;
+      const entry = rows[index];
       if (!entry) {
         if (slot.entry) {
           slot.row.hidden = true;
@@ -139,15 +151,19 @@ export class TreeView {
       }
       if (rebind || slot.entry !== entry) {
         // A fold changes the row's own aria-expanded and toggle even when it stays in place.
-        if (this.forceBind || slot.entry !== entry || slot.index !== first + i)
-          this.#place(slot, entry, first + i);
+        if (this.forceBind || slot.entry !== entry || slot.index !== index) this.#place(slot, entry, index);
         this.#values(slot, entry, now);
       } else if (this.dirty.has(entry.key)) {
-        this.#values(slot, entry, now);
+        if (updated < budget && index >= top && index <= lastVisible) {
+          this.#values(slot, entry, now);
+          updated++;
+        } else deferred.push(entry.key);
       }
       if (slot.flashing > 0) this.#unflash(slot, now);
     }
+    this.turn = (start + Math.max(1, updated)) % n;
     this.dirty.clear();
+    for (const key of deferred) this.dirty.add(key);
     this.forceBind = false;
     this.scrolled = false;
     this.#markActive(rows);
@@ -260,8 +276,12 @@ export class TreeView {
         slot.row.setAttribute('aria-selected', String(on));
       }
     }
-    if (activeId) this.grid.setAttribute('aria-activedescendant', activeId);
-    else this.grid.removeAttribute('aria-activedescendant');
+    // Only on change: rewriting the attribute every frame costs style and accessibility work.
+    if (activeId !== this.activeId) {
+      this.activeId = activeId;
+      if (activeId) this.grid.setAttribute('aria-activedescendant', activeId);
+      else this.grid.removeAttribute('aria-activedescendant');
+    }
     this.activeRows = rows;
   }
 
