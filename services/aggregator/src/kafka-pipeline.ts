@@ -16,7 +16,7 @@ import { parseArgs } from 'node:util';
 import { randomBytes } from 'node:crypto';
 import { RiskEngine, WallClock } from '@keelson/engine';
 import type { NodePartial } from '@keelson/engine';
-import { KafkaBus } from '@keelson/bus';
+import { KafkaBus, javaPartition } from '@keelson/bus';
 import type { BatchContext, BusRecord, KafkaBusLogger } from '@keelson/bus';
 import { EngineRunner, AlertLog, createLogger, originOf, planBatch } from '@keelson/runtime';
 import type { Published, RunnerEngine } from '@keelson/runtime';
@@ -160,11 +160,21 @@ class TableStore {
     this.rows.set(k, r);
   }
   all(): BusRecord[] {
-    // Curves before limits, so that a replayed limit is checked against priced nodes.
-    return [...this.rows.values()].sort((a, b) =>
-      a.topic === b.topic ? 0 : a.topic === TOPICS.curves ? -1 : 1,
-    );
+    // Market data before limits, so that a replayed limit is checked against priced nodes.
+    const rank = (t: string) => (t === TOPICS.limits ? 1 : 0);
+    return [...this.rows.values()].sort((a, b) => rank(a.topic) - rank(b.topic));
   }
+}
+
+/**
+ * A spot of a pair that converts into the reporting currency (CCYREP or REPCCY): every partition's
+ * engine needs it for its positions in CCY, wherever the pair's own partition is. Engines ignore a
+ * tick older than the one they hold, so a pair's tick reaching its owner twice does no harm.
+ */
+function isConversionSpot(r: BusRecord, rep: string): boolean {
+  const k = r.key;
+  if (r.topic !== TOPICS.spots || !k || !/^[A-Z]{6}$/.test(k)) return false;
+  return (k.slice(0, 3) === rep) !== (k.slice(3) === rep);
 }
 
 /** Applies records to an engine while rebuilding: state only, every output dropped. */
@@ -189,6 +199,8 @@ class PartitionEngine implements RunnerEngine {
   constructor(
     readonly engine: RiskEngine,
     readonly partition: number,
+    /** Whether this partition owns an underlying's feed (conversion pairs reach every engine). */
+    private readonly owns: (underlying: string) => boolean,
   ) {}
   ingest(raw: string, source: string) {
     return this.engine.ingest(raw, source);
@@ -210,7 +222,8 @@ class PartitionEngine implements RunnerEngine {
     const d = this.engine.drainPartials();
     return {
       exposures: d.partials.map((p) => this.carry(p)),
-      alerts: d.alerts.filter((a): a is StaleFeedMsg => a.type === 'stale-feed'),
+      // One voice per feed: the engine of the partition the feed's key lands on.
+      alerts: d.alerts.filter((a): a is StaleFeedMsg => a.type === 'stale-feed' && this.owns(a.underlying)),
       rejected: d.rejected,
     };
   }
@@ -384,9 +397,15 @@ export async function runKafkaPipeline(opts: {
         feeds: () => [...engines.values()].flatMap(({ pe }) => pe.engine.feeds()),
         openAlerts: () => [],
       });
+      const spotPartitions = await bus.partitionCount(TOPICS.spots);
+      const owns = (p: number) => (underlying: string) => javaPartition(underlying, spotPartitions) === p;
       await bus.subscribe(
-        TABLE_TOPICS,
-        async (batch, ctx) => {
+        [...TABLE_TOPICS, TOPICS.spots],
+        async (all, ctx) => {
+          const batch = all.filter(
+            (r) => r.topic !== TOPICS.spots || isConversionSpot(r, a.reportingCurrency),
+          );
+          if (batch.length === 0) return;
           for (const r of batch) tables.put(r);
           if (ctx.restoring || !live) {
             for (const { pe } of engines.values()) restoreInto(pe.engine, batch);
@@ -429,7 +448,7 @@ export async function runKafkaPipeline(opts: {
             engines.clear();
             const parts = new Set(e.assignment.flatMap((x) => x.partitions));
             for (const p of parts) {
-              const pe = new PartitionEngine(newEngine(), p);
+              const pe = new PartitionEngine(newEngine(), p, owns(p));
               restoreInto(pe.engine, tables.all());
               engines.set(p, {
                 pe,
