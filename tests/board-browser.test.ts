@@ -99,6 +99,9 @@ describe.skipIf(!available)('desk view in chromium', () => {
       around('L-KESTREL-1-PV', 'desk=KESTREL/book=KESTREL-1', 'pv', 0.55),
       around('L-PELICAN-DELTA', 'underlying=PELICAN', 'delta', 0.31),
     ];
+    // The bound on the side the value stands (contract: max for value >= 0, min below 0).
+    const sideBound = (v: LimitView): number => (v.value < 0 ? v.min! : v.max!);
+    const pelicanBound = sideBound(others[2]!);
     const heronWarn = valid.alert({
       type: 'alert',
       alertId: 'L-HERON-VEGA#1',
@@ -106,7 +109,7 @@ describe.skipIf(!available)('desk view in chromium', () => {
       nodeKey: 'desk=HERON',
       metric: 'vega',
       value: others[0]!.value,
-      bound: others[0]!.max!,
+      bound: sideBound(others[0]!),
       utilization: 0.86,
       severity: 'warning',
       previous: 'ok',
@@ -120,8 +123,8 @@ describe.skipIf(!available)('desk view in chromium', () => {
         limitId: 'L-PELICAN-DELTA',
         nodeKey: 'underlying=PELICAN',
         metric: 'delta',
-        value: 1,
-        bound: 1,
+        value: 0.82 * pelicanBound,
+        bound: pelicanBound,
         utilization: 0.82,
         severity: 'warning',
         previous: 'ok',
@@ -134,8 +137,8 @@ describe.skipIf(!available)('desk view in chromium', () => {
         limitId: 'L-PELICAN-DELTA',
         nodeKey: 'underlying=PELICAN',
         metric: 'delta',
-        value: 1,
-        bound: 1,
+        value: 0.7 * pelicanBound,
+        bound: pelicanBound,
         utilization: 0.7,
         severity: 'ok',
         previous: 'warning',
