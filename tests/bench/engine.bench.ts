@@ -454,7 +454,8 @@ async function offer(
   for (;;) {
     const el = performance.now() - t0;
     if (el >= endMs) break;
-    const due = Math.floor((rate * el) / 1000) - sent;
+    // Tick k is due at k / rate seconds, the first at once: `seconds` of offer carry rate x seconds ticks.
+    const due = Math.min(Math.floor((rate * el) / 1000) + 1, Math.floor(rate * seconds)) - sent;
     if (due > 0) {
       const ts = iso(Date.now());
       const recs = new Array<{ key: string; value: string }>(due);
