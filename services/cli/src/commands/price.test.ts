@@ -216,6 +216,7 @@ describe('keelson price: rejected lines name the field and the run goes on', () 
     [{ ...good, vol: 0 }, null, /^vol must be > 0 \(got 0\)$/],
     [{ ...good, vol: 12 }, null, /^vol must be <= 10/],
     [{ ...good, years: -1 }, null, /^years must be >= 0/],
+    [{ ...good, years: 250 }, null, /^years must be <= 100/],
     [{ ...good, rate: 3 }, null, /^rate must be in \[-1, 1\]/],
     [{ ...good, premium: 5 }, null, /^give either vol or premium, not both$/],
     [{ ...good, vol: undefined }, null, /^vol or premium is required$/],

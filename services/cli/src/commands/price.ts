@@ -22,7 +22,7 @@ input fields
   underlyingKind  equity | fx | future                                    default equity
   spot            spot price (> 0); for a future, the futures price       required
   strike          strike (> 0)                                            required
-  years           time to expiry in years, ACT/365 (>= 0; 0 = expired)   required
+  years           time to expiry in years, ACT/365, [0, 100]; 0 = expired required
   vol             volatility, decimal (0.25 = 25%), in (0, 10]
   premium         option price per unit: solve the implied vol, then price at it
                   (exactly one of vol and premium; implied vol is for vanilla payoffs only)
@@ -79,7 +79,9 @@ const LineSchema = z.strictObject(
     underlyingKind: enumField('underlyingKind', ['equity', 'fx', 'future'] as const).default('equity'),
     spot: numberField('spot').gt(0, { error: (iss) => `spot must be > 0 (got ${show(iss.input)})` }),
     strike: numberField('strike').gt(0, { error: (iss) => `strike must be > 0 (got ${show(iss.input)})` }),
-    years: numberField('years').gte(0, { error: (iss) => `years must be >= 0 (got ${show(iss.input)})` }),
+    years: numberField('years')
+      .gte(0, { error: (iss) => `years must be >= 0 (got ${show(iss.input)})` })
+      .lte(100, { error: (iss) => `years must be <= 100 (got ${show(iss.input)})` }),
     vol: numberField('vol')
       .gt(0, { error: (iss) => `vol must be > 0 (got ${show(iss.input)})` })
       .lte(10, { error: (iss) => `vol must be <= 10, i.e. 1000% (got ${show(iss.input)})` })
