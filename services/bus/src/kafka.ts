@@ -313,6 +313,14 @@ export class KafkaBus implements Bus {
       maxWaitTimeInMs: this.opts.maxWaitTimeMs ?? DEFAULTS.maxWaitTimeMs,
       maxBytesPerPartition: this.opts.maxBytesPerPartition ?? DEFAULTS.maxBytesPerPartition,
       allowAutoTopicCreation: false,
+      retry: {
+        // kafkajs gives up for good on errors it deems non-retriable, such as finding no group
+        // coordinator while a broker restarts; a stream processor has to come back instead.
+        restartOnFailure: async (err: Error) => {
+          this.opts.logger?.warn({ groupId, err: err.message }, 'kafka consumer failed; restarting it');
+          return !this.closed;
+        },
+      },
     });
     const member: Member = {
       groupId,
