@@ -2,7 +2,7 @@
 // is gone, and afterwards the exposures on the topic are still those `keelson replay` gives.
 // Runs against a private broker from deploy/local-kafka (a shared one must not be stopped).
 import { spawn, spawnSync, type ChildProcess } from 'node:child_process';
-import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
@@ -59,6 +59,11 @@ describe.skipIf(!haveTools)('keelson run across a broker restart', () => {
     if (child && child.exitCode === null) child.kill('SIGKILL');
     await Promise.allSettled(buses.map((b) => b.close()));
     await runLocalKafka('stop', ['--port', String(port)]).catch(() => undefined);
+    // A private instance: its data has no use after the test.
+    rmSync(join(process.cwd(), 'deploy', 'local-kafka', '.run', `plain-${port}`), {
+      recursive: true,
+      force: true,
+    });
   });
 
   it('goes unready while the broker is down, recovers, and ends equal to the replay', async () => {
