@@ -141,7 +141,7 @@ describe('EngineRunner over a real RiskEngine', () => {
           await bus.close();
 
           expect(runner.stats().accepted).toBe(recs.length);
-        conflatedTotal += runner.stats().conflated;
+          conflatedTotal += runner.stats().conflated;
           const a = reference.snapshot();
           const b = engine.snapshot();
           expect(b.map((e) => e.nodeKey)).toEqual(a.map((e) => e.nodeKey));
