@@ -186,6 +186,33 @@ function toLogLevel(level: number): 'debug' | 'info' | 'warn' | 'error' {
   return 'debug';
 }
 
+/**
+ * Bytes of key and value per produce request. kafkajs puts all of a request's records for one
+ * partition in one record batch, and the broker refuses a batch over message.max.bytes (1 MiB by
+ * default, Kafka broker configuration docs): a simulator bootstrap of thousands of trades exceeded it.
+ */
+export const MAX_REQUEST_BYTES = 512 * 1024;
+
+/** Records cut into consecutive runs of at most MAX_REQUEST_BYTES (a larger single record alone). */
+export function requestSized<R extends OutRecord>(records: R[], maxBytes = MAX_REQUEST_BYTES): R[][] {
+  const out: R[][] = [];
+  let run: R[] = [];
+  let bytes = 0;
+  for (const r of records) {
+    // UTF-16 length x 3 bounds the UTF-8 length without encoding; plus kafkajs's per-record overhead.
+    const size = (r.value.length + (r.key?.length ?? 0)) * 3 + 64;
+    if (run.length && bytes + size > maxBytes) {
+      out.push(run);
+      run = [];
+      bytes = 0;
+    }
+    run.push(r);
+    bytes += size;
+  }
+  if (run.length) out.push(run);
+  return out;
+}
+
 export class KafkaBus implements Bus {
   readonly topicPrefix: string;
   readonly groupId: string;
@@ -274,12 +301,15 @@ export class KafkaBus implements Bus {
     if (records.length === 0) return;
     const producer = await this.connectProducer();
     try {
-      await producer.send({
-        topic: this.physical(topic),
-        acks: -1,
-        compression: this.opts.compression === 'gzip' ? CompressionTypes.GZIP : CompressionTypes.None,
-        messages: records.map((r) => ({ key: r.key, value: r.value })),
-      });
+      // In order, one request at a time: the idempotent producer keeps the order within a partition.
+      for (const part of requestSized(records)) {
+        await producer.send({
+          topic: this.physical(topic),
+          acks: -1,
+          compression: this.opts.compression === 'gzip' ? CompressionTypes.GZIP : CompressionTypes.None,
+          messages: part.map((r) => ({ key: r.key, value: r.value })),
+        });
+      }
       if (this.producerError !== undefined) {
         this.producerError = undefined;
         this.updateConnected();
@@ -532,15 +562,17 @@ export class KafkaBus implements Bus {
     const n = await this.partitionCount(topic);
     const producer = await this.connectProducer();
     try {
-      await producer.send({
-        topic: this.physical(topic),
-        acks: -1,
-        messages: records.map((r) => ({
-          key: r.key,
-          value: r.value,
-          partition: javaPartition(r.partitionKey, n),
-        })),
-      });
+      for (const part of requestSized(records)) {
+        await producer.send({
+          topic: this.physical(topic),
+          acks: -1,
+          messages: part.map((r) => ({
+            key: r.key,
+            value: r.value,
+            partition: javaPartition(r.partitionKey, n),
+          })),
+        });
+      }
       if (this.producerError !== undefined) {
         this.producerError = undefined;
         this.updateConnected();

@@ -2,6 +2,7 @@
 // topics, keyed per the contract, so that `keelson run --brokers` has something to chew on.
 import { readFile } from 'node:fs/promises';
 import { parseArgs } from 'node:util';
+import type { Bus } from '@keelson/bus';
 import type { CommandIo } from '../main.ts';
 
 const HELP = `usage: keelson sim --brokers HOST:PORT[,...] [options]
@@ -22,6 +23,9 @@ options:
   --duration SECONDS    stop after this long (default: run until interrupted)
   --bootstrap-only      publish the bootstrap and exit
   --tape FILE           publish this tape instead of the simulator, then exit
+  --port N / --host ADDR
+                        serve /healthz, /readyz and /metrics here while feeding (default: no
+                        HTTP; --port 0 picks a free port, --host defaults to 127.0.0.1)
   -h, --help
 `;
 
@@ -50,6 +54,8 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
         duration: { type: 'string' },
         'bootstrap-only': { type: 'boolean' },
         tape: { type: 'string' },
+        host: { type: 'string' },
+        port: { type: 'string' },
         help: { type: 'boolean', short: 'h' },
       },
     }));
@@ -70,8 +76,11 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
       import('@keelson/shared-types'),
     ]);
   let bus;
-  let seed, underlyings, trades, speed, stepMs, duration;
+  let seed, underlyings, trades, speed, stepMs, duration, port;
   try {
+    port = numOpt('port', values.port, 0);
+    if (port !== undefined && (!Number.isInteger(port) || port > 65535))
+      throw new Error(`--port must be an integer in 0..65535, got '${values.port}'`);
     seed = numOpt('seed', values.seed, 0) ?? 1;
     underlyings = numOpt('underlyings', values.underlyings, 1);
     trades = numOpt('trades', values.trades, 0);
@@ -88,7 +97,12 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
     return 1;
   }
 
+  const health = new FeedHealth();
+  let http: { url: string; close(): Promise<void> } | undefined;
   try {
+    if (port !== undefined || values.host !== undefined)
+      http = await serveFeedHealth(health, values.host ?? '127.0.0.1', port ?? 9400);
+    if (http) io.stdout.write(`sim http on ${http.url}\n`);
     if (values.tape !== undefined) {
       const n = await publishTape(bus, await readFile(values.tape, 'utf8'), {
         decodeInput,
@@ -111,27 +125,38 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
     });
     const feeder = new SimFeeder({
       source,
-      bus,
+      // The feeder routes a malformed line by its type alone, which can leave it keyless on a
+      // compacted topic; the broker refuses those, so they are re-routed as a tape's are.
+      bus: poisonSafe(bus, { decodeInput, inputKey, inputTopic, routeMalformed }),
       clock: { now: () => Date.now() },
       stepMs,
-      onError: (err) => io.stderr.write(`keelson sim: publish failed: ${(err as Error).message}\n`),
+      onError: (err) => {
+        health.failed(err);
+        io.stderr.write(`keelson sim: publish failed: ${(err as Error).message}\n`);
+      },
     });
+    health.stats = () => feeder.stats();
     const boot = await feeder.publishBootstrap();
+    health.bootstrapped(boot);
     io.stdout.write(
       `published the bootstrap: ${boot} messages to ${bus.topicPrefix}* on ${bus.connection.brokers.join(',')}\n`,
     );
     if (values['bootstrap-only']) return 0;
 
     feeder.start();
+    health.live = true;
     await new Promise<void>((resolve) => {
+      // A pending --duration timer would keep the process alive after a signal.
+      let timer: NodeJS.Timeout | undefined;
       const done = () => {
+        clearTimeout(timer);
         process.off('SIGINT', done);
         process.off('SIGTERM', done);
         resolve();
       };
       process.on('SIGINT', done);
       process.on('SIGTERM', done);
-      if (duration !== undefined) setTimeout(done, duration * 1000);
+      if (duration !== undefined) timer = setTimeout(done, duration * 1000);
     });
     await feeder.stop();
     const st = feeder.stats();
@@ -144,7 +169,120 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
     return 1;
   } finally {
     await bus.close();
+    await http?.close();
   }
+}
+
+/**
+ * What the feed's HTTP endpoints report. Ready: the bootstrap is on the topics and no step has
+ * failed since the last one that published (the feeder's steps are sequential, so a step that
+ * completes after a failure proves the broker takes records again).
+ */
+class FeedHealth {
+  live = false;
+  bootstrap = -1;
+  lastError: string | undefined;
+  errors = 0;
+  private stepsAtError = -1;
+  stats: () => { steps: number; published: number; malformed: number } = () => ({
+    steps: 0,
+    published: 0,
+    malformed: 0,
+  });
+  bootstrapped(n: number): void {
+    this.bootstrap = n;
+  }
+  failed(err: unknown): void {
+    this.errors++;
+    this.lastError = (err as Error).message;
+    this.stepsAtError = this.stats().steps;
+  }
+  checks(): Record<string, { ok: boolean; detail: string }> {
+    const st = this.stats();
+    const recovered = this.lastError === undefined || st.steps > this.stepsAtError + 1;
+    return {
+      bootstrapPublished: {
+        ok: this.bootstrap >= 0,
+        detail: this.bootstrap >= 0 ? `${this.bootstrap} messages` : 'publishing the bootstrap',
+      },
+      feedPublishing: {
+        ok: this.live && recovered,
+        detail: !this.live
+          ? 'not started'
+          : recovered
+            ? `${st.steps} steps`
+            : `last publish failed: ${this.lastError}`,
+      },
+    };
+  }
+}
+
+/** Prometheus text exposition (format 0.0.4) of the feed's counters, written out by hand: five lines. */
+function feedMetrics(h: FeedHealth): string {
+  const st = h.stats();
+  const ready = Object.values(h.checks()).every((c) => c.ok) ? 1 : 0;
+  const rows: [string, 'counter' | 'gauge', string, number][] = [
+    ['keelson_sim_steps_total', 'counter', 'Feed steps taken.', st.steps],
+    [
+      'keelson_sim_published_messages_total',
+      'counter',
+      'Valid messages published (bootstrap included).',
+      st.published,
+    ],
+    [
+      'keelson_sim_malformed_lines_total',
+      'counter',
+      'Malformed lines published for the engine to dead-letter.',
+      st.malformed,
+    ],
+    ['keelson_sim_publish_errors_total', 'counter', 'Steps whose publish failed.', h.errors],
+    ['keelson_sim_ready', 'gauge', '1 when the bootstrap is published and the feed publishes.', ready],
+  ];
+  return rows.map(([n, t, help, v]) => `# HELP ${n} ${help}\n# TYPE ${n} ${t}\n${n} ${v}\n`).join('');
+}
+
+async function serveFeedHealth(
+  h: FeedHealth,
+  host: string,
+  port: number,
+): Promise<{ url: string; close(): Promise<void> }> {
+  const { createServer } = await import('node:http');
+  const server = createServer((req, res) => {
+    const path = (req.url ?? '/').split('?')[0];
+    const send = (status: number, type: string, body: string, extra: Record<string, string> = {}) => {
+      res.writeHead(status, { 'content-type': type, 'cache-control': 'no-store', ...extra });
+      res.end(req.method === 'HEAD' ? undefined : body);
+    };
+    if (path !== '/healthz' && path !== '/readyz' && path !== '/metrics')
+      return send(404, 'application/json', JSON.stringify({ error: `no such path: ${path}` }));
+    if (req.method !== 'GET' && req.method !== 'HEAD')
+      return send(405, 'application/json', JSON.stringify({ error: 'method not allowed' }), {
+        allow: 'GET, HEAD',
+      });
+    if (path === '/healthz') return send(200, 'application/json', JSON.stringify({ ok: true }));
+    if (path === '/metrics') return send(200, 'text/plain; version=0.0.4; charset=utf-8', feedMetrics(h));
+    const checks = h.checks();
+    const waitingFor = Object.keys(checks).filter((k) => !checks[k]!.ok);
+    send(
+      waitingFor.length ? 503 : 200,
+      'application/json',
+      JSON.stringify({ ready: waitingFor.length === 0, checks, waitingFor }),
+    );
+  });
+  await new Promise<void>((resolve, reject) => {
+    server.once('error', reject);
+    server.listen(port, host, () => resolve());
+  });
+  const addr = server.address();
+  const actual = typeof addr === 'object' && addr ? addr.port : port;
+  return {
+    url: `http://${host.includes(':') ? `[${host}]` : host}:${actual}`,
+    close: () =>
+      new Promise<void>((resolve) => {
+        server.closeAllConnections();
+        server.close(() => resolve());
+      }),
+  };
 }
 
 /**
@@ -167,6 +305,28 @@ function routePoison(
   }
   if (key === null) return { topic: 'trades', record: { key: null, value: line } };
   return { topic: routed.topic, record: { key, value: line } };
+}
+
+/**
+ * A bus whose keyless records to any topic but trades are re-routed with routePoison: only a
+ * malformed line can be keyless (every valid input has its contract key), and a compacted topic
+ * refuses a record without a key (InvalidRecord), which would fail the whole step's publish.
+ */
+export function poisonSafe(bus: Bus, deps: TapeDeps): Bus {
+  return {
+    publish: async (topic, records) => {
+      if (topic === 'trades' || records.every((r) => r.key !== null)) return bus.publish(topic, records);
+      const keep = records.filter((r) => r.key !== null);
+      if (keep.length) await bus.publish(topic, keep);
+      for (const r of records) {
+        if (r.key !== null) continue;
+        const routed = routePoison(r.value, deps);
+        await bus.publish(routed.topic, [routed.record]);
+      }
+    },
+    subscribe: (topics, handler) => bus.subscribe(topics, handler),
+    close: () => bus.close(),
+  };
 }
 
 interface TapeDeps {
