@@ -15,7 +15,9 @@ const files = readdirSync(here)
 let failed = 0;
 for (const f of files) {
   process.stdout.write(`\n=== ${f}\n`);
-  const r = spawnSync(process.execPath, ['--import', 'tsx', '--expose-gc', join(here, f)], { stdio: 'inherit' });
+  const r = spawnSync(process.execPath, ['--import', 'tsx', '--expose-gc', join(here, f)], {
+    stdio: 'inherit',
+  });
   if (r.status !== 0) failed++;
 }
 process.exit(failed ? 1 : 0);

@@ -9,12 +9,27 @@ export interface CommandIo {
 export type Command = (argv: string[], io: CommandIo) => Promise<number>;
 
 const commands: Record<string, { summary: string; load: () => Promise<{ run: Command }> }> = {
-  price: { summary: 'price options from JSON lines (Greeks, implied vol)', load: () => import('./commands/price.ts') },
-  replay: { summary: 'run the engine over a tape of contract inputs', load: () => import('./commands/replay.ts') },
-  run: { summary: 'run the pipeline (embedded default, or on Kafka with --brokers)', load: () => import('./commands/run.ts') },
+  price: {
+    summary: 'price options from JSON lines (Greeks, implied vol)',
+    load: () => import('./commands/price.ts'),
+  },
+  replay: {
+    summary: 'run the engine over a tape of contract inputs',
+    load: () => import('./commands/replay.ts'),
+  },
+  run: {
+    summary: 'run the pipeline (embedded default, or on Kafka with --brokers)',
+    load: () => import('./commands/run.ts'),
+  },
   topics: { summary: 'create the Kafka topics, idempotently', load: () => import('./commands/topics.ts') },
-  sim: { summary: 'publish the simulated market and trade flow to Kafka', load: () => import('./commands/sim.ts') },
-  board: { summary: "serve the desk's live view from the Kafka output topics", load: () => import('./commands/board.ts') },
+  sim: {
+    summary: 'publish the simulated market and trade flow to Kafka',
+    load: () => import('./commands/sim.ts'),
+  },
+  board: {
+    summary: "serve the desk's live view from the Kafka output topics",
+    load: () => import('./commands/board.ts'),
+  },
 };
 
 function usage(): string {
