@@ -14,7 +14,7 @@
 // limits topics are read. Offsets are committed after the outputs a batch caused are acknowledged.
 import { parseArgs } from 'node:util';
 import { randomBytes } from 'node:crypto';
-import { RiskEngine, WallClock } from '@keelson/engine';
+import { RiskEngine, WallClock, seedLimitLevels } from '@keelson/engine';
 import type { NodePartial } from '@keelson/engine';
 import { KafkaBus, javaPartition } from '@keelson/bus';
 import type { BatchContext, BusRecord, KafkaBusLogger } from '@keelson/bus';
@@ -177,6 +177,28 @@ function isConversionSpot(r: BusRecord, rep: string): boolean {
   return (k.slice(0, 3) === rep) !== (k.slice(3) === rep);
 }
 
+/**
+ * The latest alert per limitId on the alerts topic, read to its end: what risk control was last
+ * told. A rebuilt limit book continues from it (seedLimitLevels), so a restart or rebalance neither
+ * raises an open episode again nor starts a new alertId for it. Stale-feed events share the topic
+ * and are skipped; a record that is not JSON is skipped too (nothing of ours writes one).
+ */
+async function latestAlerts(bus: KafkaBus): Promise<Map<string, AlertMsg>> {
+  const latest = new Map<string, AlertMsg>();
+  for (const r of await bus.readToEnd(TOPICS.alerts)) {
+    let o: unknown;
+    try {
+      o = JSON.parse(r.value);
+    } catch {
+      continue;
+    }
+    const a = o as Partial<AlertMsg> | null;
+    if (a?.type === 'alert' && typeof a.limitId === 'string' && typeof a.alertId === 'string')
+      latest.set(a.limitId, a as AlertMsg);
+  }
+  return latest;
+}
+
 /** Applies records to an engine while rebuilding: state only, every output dropped. */
 function restoreInto(engine: RiskEngine, records: BusRecord[]): void {
   for (const p of planBatch(records).records) {
@@ -330,6 +352,7 @@ export async function runKafkaPipeline(opts: {
       let engine = newEngine();
       let runner = runnerFor(engine);
       let owned = 0;
+      let published: Promise<Map<string, AlertMsg>> = Promise.resolve(new Map());
       snapshot = () => engine.snapshot();
       openAlerts = () => engine.openAlerts();
       metrics.bindEngine(engine);
@@ -353,6 +376,9 @@ export async function runKafkaPipeline(opts: {
               runner = runnerFor(engine);
               metrics.bindEngine(engine);
               owned = e.assignment.reduce((n, x) => n + x.partitions.length, 0);
+              // Read while the partitions rebuild; awaited before going live.
+              published = latestAlerts(bus);
+              published.catch(() => undefined);
               checks.stateRebuilt = { ok: false, detail: `rebuilding ${owned} partitions from the topics` };
               metrics.setReady(false);
               log.info(
@@ -362,6 +388,8 @@ export async function runKafkaPipeline(opts: {
             }
           },
           beforeLive: async () => {
+            const seeded = seedLimitLevels(engine, (await published).values());
+            log.info({ limits: seeded.length }, 'limit levels continue from the alerts topic');
             let total = 0;
             for (const t of [...TABLE_TOPICS, ...KEYED_TOPICS]) total += await bus.partitionCount(t);
             await runner.publishSnapshot();
@@ -486,6 +514,7 @@ export async function runKafkaPipeline(opts: {
       );
     } else {
       let agg = new PartialsAggregator();
+      let published: Promise<Map<string, AlertMsg>> = Promise.resolve(new Map());
       const limitRows = new TableStore();
       let live = false;
       let limitsLive!: () => void;
@@ -543,6 +572,8 @@ export async function runKafkaPipeline(opts: {
             if (e.phase !== 'restoring') return;
             live = false;
             agg = new PartialsAggregator();
+            published = latestAlerts(bus);
+            published.catch(() => undefined);
             for (const r of limitRows.all()) agg.applyLimit(r.value);
             agg.drain();
             checks.stateRebuilt = { ok: false, detail: 'rebuilding partials' };
@@ -554,6 +585,9 @@ export async function runKafkaPipeline(opts: {
           },
           beforeLive: async () => {
             await limitsReady;
+            // Limits that arrived while rebuilding were applied then; the published levels win.
+            const seeded = agg.seedLevels((await published).values());
+            log.info({ limits: seeded.length }, 'limit levels continue from the alerts topic');
             agg.touchAll();
             live = true;
             await out.emit(agg.drain());

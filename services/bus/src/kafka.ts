@@ -524,6 +524,73 @@ export class KafkaBus implements Bus {
     }
   }
 
+  /**
+   * Every record of a (logical) topic from its earliest offset up to its end as it is now (the high
+   * watermarks read first), in offset order per partition. A consumer of a throwaway group that
+   * commits nothing (kafkajs has no manual assignment); rejects after `timeoutMs`.
+   */
+  async readToEnd(topic: string, timeoutMs = 60_000): Promise<BusRecord[]> {
+    const admin = await this.sharedAdmin();
+    const physical = this.physical(topic);
+    const ends = new Map<number, bigint>();
+    for (const o of await admin.fetchTopicOffsets(physical))
+      if (BigInt(o.high) > BigInt(o.low)) ends.set(o.partition, BigInt(o.high));
+    if (ends.size === 0) return [];
+    const groupId = `${this.groupId}.read-${topic}.${Date.now().toString(36)}${Math.random().toString(36).slice(2, 8)}`;
+    const consumer = this.kafka.consumer({
+      groupId,
+      maxWaitTimeInMs: this.opts.maxWaitTimeMs ?? DEFAULTS.maxWaitTimeMs,
+      maxBytesPerPartition: this.opts.maxBytesPerPartition ?? DEFAULTS.maxBytesPerPartition,
+      allowAutoTopicCreation: false,
+    });
+    const out: BusRecord[] = [];
+    try {
+      await consumer.connect();
+      await consumer.subscribe({ topics: [physical], fromBeginning: true });
+      await new Promise<void>((resolve, reject) => {
+        const timer = setTimeout(
+          () => reject(new Error(`reading ${physical} to its end took over ${timeoutMs} ms`)),
+          timeoutMs,
+        );
+        consumer.on(consumer.events.CRASH, (e) => {
+          if (!e.payload.restart) {
+            clearTimeout(timer);
+            reject(e.payload.error);
+          }
+        });
+        consumer
+          .run({
+            autoCommit: false,
+            eachBatch: async ({ batch }) => {
+              const end = ends.get(batch.partition);
+              if (end === undefined) return;
+              for (const m of batch.messages)
+                if (BigInt(m.offset) < end) out.push(this.toRecord(topic, batch.partition, m));
+              const last = batch.messages[batch.messages.length - 1];
+              if (last && BigInt(last.offset) + 1n >= end) ends.delete(batch.partition);
+              if (ends.size === 0) {
+                clearTimeout(timer);
+                resolve();
+              }
+            },
+          })
+          .catch((e: unknown) => {
+            clearTimeout(timer);
+            reject(e);
+          });
+      });
+    } finally {
+      await consumer.disconnect().catch(() => undefined);
+      // The group holds no offsets; deleting it keeps the broker's group list clean.
+      await admin.deleteGroups([groupId]).catch(() => undefined);
+    }
+    return out.sort((a, b) =>
+      a.partition !== b.partition
+        ? a.partition! - b.partition!
+        : Number(BigInt(a.offset!) - BigInt(b.offset!)),
+    );
+  }
+
   private adminReady: Promise<Admin> | undefined;
   private sharedAdmin(): Promise<Admin> {
     if (!this.adminReady) {
