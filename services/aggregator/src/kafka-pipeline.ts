@@ -16,7 +16,7 @@ import { parseArgs } from 'node:util';
 import { randomBytes } from 'node:crypto';
 import { RiskEngine, WallClock, seedLimitLevels } from '@keelson/engine';
 import type { NodePartial } from '@keelson/engine';
-import { KafkaBus, javaPartition } from '@keelson/bus';
+import { KafkaBus, javaPartition, startLagReporter } from '@keelson/bus';
 import type { BatchContext, BusRecord, KafkaBusLogger } from '@keelson/bus';
 import { EngineRunner, AlertLog, createLogger, originOf, planBatch } from '@keelson/runtime';
 import type { Published, RunnerEngine } from '@keelson/runtime';
@@ -51,6 +51,8 @@ options:
   --port N / --host ADDR     HTTP (default 127.0.0.1:9400; 0 picks a free port)
   --token T                  bearer token for the data endpoints (default KEELSON_HTTP_TOKEN)
   --open-metrics             leave /metrics open when a token is set
+  --max-ready-lag N          not ready while any owned partition lags more messages (default 10000)
+  --lag-interval SECONDS     how often consumer lag is measured (default 5)
   --duration SECONDS         stop by itself after this long
   --log-level LEVEL          (default info)
   -h, --help
@@ -76,6 +78,8 @@ interface Args {
   guardMetrics: boolean;
   durationMs?: number;
   logLevel: string;
+  maxReadyLag: number;
+  lagIntervalMs: number;
 }
 
 class UsageError extends Error {}
@@ -109,6 +113,8 @@ function parse(argv: string[], brokers: string): Args | 'help' {
       token: { type: 'string' },
       'open-metrics': { type: 'boolean' },
       duration: { type: 'string' },
+      'max-ready-lag': { type: 'string' },
+      'lag-interval': { type: 'string' },
       'log-level': { type: 'string' },
       quiet: { type: 'boolean' },
       help: { type: 'boolean', short: 'h' },
@@ -143,6 +149,8 @@ function parse(argv: string[], brokers: string): Args | 'help' {
     guardMetrics: !values['open-metrics'],
     ...(duration !== undefined ? { durationMs: duration } : {}),
     logLevel: values['log-level'] ?? 'info',
+    maxReadyLag: num('max-ready-lag', values['max-ready-lag'], 10_000, 0),
+    lagIntervalMs: Math.max(100, num('lag-interval', values['lag-interval'], 5, 0.1) * 1000),
   };
 }
 
@@ -301,6 +309,7 @@ export async function runKafkaPipeline(opts: {
   const checks: Record<string, ReadinessCheck> = {
     busConnected: { ok: false, detail: 'connecting' },
     stateRebuilt: { ok: false, detail: 'waiting for a partition assignment' },
+    consumerLag: { ok: false, detail: 'not measured yet' },
   };
   const onPublished = (p: Published) => {
     for (const x of p.alerts) {
@@ -603,6 +612,27 @@ export async function runKafkaPipeline(opts: {
     await bus.close();
     return 1;
   }
+
+  const judgeLag = (m: number | undefined) => {
+    checks.consumerLag =
+      m === undefined
+        ? { ok: false, detail: 'not measured yet' }
+        : {
+            ok: m <= a.maxReadyLag,
+            detail: `largest partition lag ${m} messages (ready at most ${a.maxReadyLag})`,
+          };
+    // keelson_ready follows the rebuild; a backlog over the threshold also holds it at 0.
+    if (checks.stateRebuilt?.ok) metrics.setReady(checks.consumerLag.ok);
+  };
+  const lag = startLagReporter(
+    bus,
+    metrics,
+    a.lagIntervalMs,
+    (err) => log.warn({ err: (err as Error).message }, 'consumer lag not measured'),
+    judgeLag,
+  );
+  void lag.refresh();
+  stopFns.push(async () => lag.stop());
 
   let http: RunningHttpServer;
   try {

@@ -142,6 +142,8 @@ interface Member {
   prep: Promise<void> | undefined;
   progress: Map<string, PartitionProgress>;
   live: boolean;
+  /** topic:partition -> next offset to handle (after the last handled batch), for the lag. */
+  positions: Map<string, bigint>;
 }
 
 export interface KafkaBusStatus {
@@ -364,6 +366,7 @@ export class KafkaBus implements Bus {
       prep: undefined,
       progress: new Map(),
       live: false,
+      positions: new Map(),
     };
     this.members.push(member);
     this.watch(member);
@@ -404,6 +407,10 @@ export class KafkaBus implements Bus {
         );
         if (member.generation !== generation) return;
         p.resolveOffset(restoring[restoring.length - 1]!.offset!);
+        member.positions.set(
+          `${topic}:${batch.partition}`,
+          BigInt(restoring[restoring.length - 1]!.offset!) + 1n,
+        );
       }
       if (restoring.length === records.length && BigInt(last.offset) + 1n < progress.boundary) return;
       // At the boundary: hold this partition until all are there (its unresolved records are
@@ -422,6 +429,7 @@ export class KafkaBus implements Bus {
     // A batch handled across a rebalance is not ours to commit: its new owner reads it again.
     if (member.generation !== generation) return;
     p.resolveOffset(last.offset);
+    member.positions.set(`${topic}:${batch.partition}`, BigInt(last.offset) + 1n);
     if (commit) {
       await p.commitOffsetsIfNecessary({
         topics: [
@@ -522,6 +530,46 @@ export class KafkaBus implements Bus {
       }
       if (hold.length) member.consumer.pause(hold);
     }
+  }
+
+  /**
+   * Consumer lag per owned partition and group: the high watermark minus the position, which is
+   * the offset after the last batch this process handled there, else the group's committed offset,
+   * else the partition's earliest offset (nothing read yet). During a rebuild the position starts
+   * again at the earliest offset, so the lag also says how much rebuilding is left.
+   */
+  async consumerLag(): Promise<{ groupId: string; topic: string; partition: number; lag: number }[]> {
+    const admin = await this.sharedAdmin();
+    const ends = new Map<string, { partition: number; low: string; high: string }[]>();
+    const out: { groupId: string; topic: string; partition: number; lag: number }[] = [];
+    for (const m of this.members) {
+      if (m.state === 'stopped' || m.assignment.length === 0) continue;
+      const assignment = m.assignment;
+      const committed = new Map<string, bigint>();
+      if (m.opts.commit ?? true) {
+        const topics = assignment.map((a) => this.physical(a.topic));
+        for (const t of await admin.fetchOffsets({ groupId: m.groupId, topics }))
+          for (const pp of t.partitions)
+            committed.set(`${this.logical(t.topic)}:${pp.partition}`, BigInt(pp.offset));
+      }
+      for (const a of assignment) {
+        let offs = ends.get(a.topic);
+        if (!offs) {
+          offs = await admin.fetchTopicOffsets(this.physical(a.topic));
+          ends.set(a.topic, offs);
+        }
+        for (const partition of a.partitions) {
+          const o = offs.find((x) => x.partition === partition);
+          if (!o) continue;
+          const key = `${a.topic}:${partition}`;
+          const done = committed.get(key);
+          const pos = m.positions.get(key) ?? (done !== undefined && done >= 0n ? done : BigInt(o.low));
+          const lag = BigInt(o.high) - pos;
+          out.push({ groupId: m.groupId, topic: a.topic, partition, lag: lag > 0n ? Number(lag) : 0 });
+        }
+      }
+    }
+    return out;
   }
 
   /**
@@ -690,6 +738,7 @@ export class KafkaBus implements Bus {
           partitions: [...partitions].sort((a, b) => a - b),
         }))
         .sort((a, b) => (a.topic < b.topic ? -1 : a.topic > b.topic ? 1 : 0));
+      member.positions = new Map();
       this.updateConnected();
       this.opts.onRebalance?.({ kind: 'assigned', groupId: member.groupId, assignment: member.assignment });
       if (member.opts.rebuild) {
@@ -847,3 +896,7 @@ export class KafkaBus implements Bus {
     this.updateConnected();
   }
 }
+
+// The lag reporter lives beside the bus; re-exported here since the package index lists kafka.ts.
+export { startLagReporter } from './kafka-lag.ts';
+export type { LagReporter, LagSink } from './kafka-lag.ts';
