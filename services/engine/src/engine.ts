@@ -44,8 +44,8 @@ import {
 } from './instruments.ts';
 import { LimitMonitor } from './limits.ts';
 import type { LimitView, MetricValues } from './limits.ts';
-import { NodeCube, exposureOf } from './nodes.ts';
-import type { Node, NodeSet, Pending } from './nodes.ts';
+import { ExposureView, NodeCube, exposureOf } from './nodes.ts';
+import type { Node, NodeGroup, NodeSet, Pending } from './nodes.ts';
 import { partialOf } from './partials.ts';
 import { msOf } from './time.ts';
 import type { NodePartial } from './partials.ts';
@@ -334,6 +334,24 @@ export class RiskEngine {
     this.outAlerts = [];
     this.outRejected = [];
     return { exposures, alerts, rejected };
+  }
+
+  /**
+   * Like drain, but the changed nodes as views read when they are published: a runner that
+   * coalesces exposures builds each once per flush instead of once per batch.
+   */
+  drainChanged(): { changed: ExposureView[]; alerts: (AlertMsg | StaleFeedMsg)[]; rejected: RejectedMsg[] } {
+    const nodes = this.takeChanged();
+    const changed = new Array<ExposureView>(nodes.length);
+    for (let k = 0; k < nodes.length; k++) {
+      const n = nodes[k] as Node;
+      changed[k] = n.view ??= new ExposureView(n, this.reportingCurrency, UNPRICED_REASONS);
+    }
+    const alerts = this.outAlerts;
+    const rejected = this.outRejected;
+    this.outAlerts = [];
+    this.outRejected = [];
+    return { changed, alerts, rejected };
   }
 
   /** Like drain, but the changed nodes as partials (scale-out: several partitions, one node). */
@@ -1062,10 +1080,11 @@ export class RiskEngine {
     oldStale: boolean,
     newStale: boolean,
   ): void {
-    const p = set.pending;
+    const g = set.group;
+    const p = g.pending;
     if (!p.staged) {
       p.staged = true;
-      this.stagedSets.push(set);
+      this.stagedGroups.push(g);
     }
     const pv = p.vec;
     for (let k = 0; k < METRIC_COUNT; k++)
@@ -1076,9 +1095,9 @@ export class RiskEngine {
     p.stale += (newStale ? 1 : 0) - (oldStale ? 1 : 0);
   }
 
-  /** Applies the staged differences: sets into their nodes, then one update per node. */
+  /** Applies the staged differences: groups into their nodes, then one update per node. */
   private flush(): void {
-    const sets = this.stagedSets;
+    const sets = this.stagedGroups;
     if (sets.length === 0) return;
     const nodes = this.stagedNodes;
     for (const s of sets) {
@@ -1100,7 +1119,7 @@ export class RiskEngine {
     nodes.length = 0;
   }
 
-  private readonly stagedSets: NodeSet[] = [];
+  private readonly stagedGroups: NodeGroup[] = [];
   private readonly stagedNodes: Node[] = [];
 
   private dropHolding(h: Holding): void {

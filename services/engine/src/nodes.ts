@@ -31,6 +31,8 @@ export class Node {
   outPending = false;
   /** Changes staged by the current input, applied once per node when the input is done. */
   readonly pending = new Pending();
+  /** The node's publication handle, made on first use (see ExposureView). */
+  view: ExposureView | null = null;
 
   constructor(dims: NodeDims, fixed: boolean) {
     this.dims = dims;
@@ -86,10 +88,21 @@ export class Pending {
   }
 }
 
+/**
+ * Node sets with the same node list share one group and stage into its one Pending: without a
+ * tenor-named limit, the sets of one (desk, book, underlying) in different tenor buckets have the
+ * same nodes, so a tick moving options in five buckets adds into the nodes once, not five times.
+ */
+export class NodeGroup {
+  readonly pending = new Pending();
+  constructor(readonly nodes: readonly Node[]) {}
+}
+
 /** The nodes one (desk, book, underlying, tenor) combination contributes to. */
 export class NodeSet {
   readonly nodes: Node[];
-  readonly pending = new Pending();
+  /** Where its holdings stage their differences; reassigned when limit scopes join or leave. */
+  group!: NodeGroup;
   constructor(
     readonly desk: string,
     readonly book: string,
@@ -125,6 +138,7 @@ export class NodeCube {
   private readonly sets = new Map<string, NodeSet>();
   /** Limit-named scopes that are not fixed kinds: they join node sets only while named. */
   private readonly extra = new Map<string, Node>();
+  private readonly groups = new Map<string, NodeGroup>();
 
   getNode(key: string): Node | undefined {
     return this.nodes.get(key);
@@ -154,7 +168,25 @@ export class NodeCube {
     s = new NodeSet(desk, book, underlying, tenor, nodes);
     for (const n of this.extra.values()) if (s.matches(n.dims)) nodes.push(n);
     this.sets.set(key, s);
+    this.assignGroup(s);
     return s;
+  }
+
+  private assignGroup(s: NodeSet): void {
+    let key = '';
+    for (const n of s.nodes) key += `${n.key}\u0000`;
+    let g = this.groups.get(key);
+    if (!g) {
+      g = new NodeGroup(s.nodes.slice());
+      this.groups.set(key, g);
+    }
+    s.group = g;
+  }
+
+  /** Node lists changed (a scope joined or left): regroup. Nothing may be staged at this point. */
+  private regroup(): void {
+    this.groups.clear();
+    for (const s of this.sets.values()) this.assignGroup(s);
   }
 
   /**
@@ -168,6 +200,7 @@ export class NodeCube {
     if (fixed || this.extra.has(node.key)) return { node, joined: false };
     this.extra.set(node.key, node);
     for (const s of this.sets.values()) if (s.matches(node.dims)) s.nodes.push(node);
+    this.regroup();
     return { node, joined: true };
   }
 
@@ -185,6 +218,7 @@ export class NodeCube {
       const i = s.nodes.indexOf(node);
       if (i >= 0) s.nodes.splice(i, 1);
     }
+    this.regroup();
     node.clearSums();
     node.positions = 0;
     node.unpriced.fill(0);
@@ -235,4 +269,52 @@ export function exposureOf(n: Node, currency: string, reasons: readonly string[]
     unpriced,
     stale: n.staleCount > 0,
   };
+}
+
+/**
+ * A changed node as the runner holds it until it publishes: the exposure is read from the node at
+ * publication time, so a node that changes in many batches between two flushes is built and
+ * serialised once, not once per batch. `json()` is byte for byte JSON.stringify(exposure()): the
+ * constant part (type, key, dims, currency) is serialised once per node.
+ */
+export class ExposureView {
+  readonly key: string;
+  readonly underlying: string | undefined;
+  private readonly head: string;
+  constructor(
+    readonly node: Node,
+    private readonly currency: string,
+    private readonly reasons: readonly string[],
+  ) {
+    this.key = node.key;
+    this.underlying = node.dims.underlying;
+    this.head = `{"type":"exposure","nodeKey":${JSON.stringify(node.key)},"node":${JSON.stringify(node.dims)},"currency":${JSON.stringify(currency)},"asOf":`;
+  }
+
+  exposure(): ExposureMsg {
+    return exposureOf(this.node, this.currency, this.reasons);
+  }
+
+  json(): string {
+    const n = this.node;
+    const z = n.positions === 0;
+    const u = n.hasUnderlying;
+    let unpriced = '';
+    for (let r = 0; r < REASON_COUNT; r++) {
+      const c = n.unpriced[r] as number;
+      if (c > 0) unpriced += `${unpriced ? ',' : ''}${JSON.stringify(this.reasons[r])}:${c}`;
+    }
+    return (
+      `${this.head}"${isoOf(n.asOfMs)}","pv":${num(z ? 0 : n.value(0))},"pnl":${num(z ? 0 : n.value(1))}` +
+      `,"delta":${u ? num(z ? 0 : n.value(2)) : 'null'},"cashDelta":${num(z ? 0 : n.value(3))}` +
+      `,"gamma":${u ? num(z ? 0 : n.value(4)) : 'null'},"cashGamma":${num(z ? 0 : n.value(5))}` +
+      `,"vega":${num(z ? 0 : n.value(6))},"theta":${num(z ? 0 : n.value(7))},"rho":${num(z ? 0 : n.value(8))}` +
+      `,"positions":${n.positions},"unpriced":{${unpriced}},"stale":${n.staleCount > 0}}`
+    );
+  }
+}
+
+/** A number as JSON.stringify writes it (shortest round trip; non-finite as null). */
+function num(x: number): string {
+  return Number.isFinite(x) ? `${x}` : 'null';
 }

@@ -151,6 +151,50 @@ describe('EngineRunner', () => {
     await bus.close();
   });
 
+  it('adapts the interval between minPublishIntervalMs and publishIntervalMs to the cost of a flush', async () => {
+    let now = 1_000_000;
+    let publishCostMs = 0;
+    // A bus whose exposure publication takes `publishCostMs` of (fake) wall time to be acknowledged.
+    class SlowBus extends MemoryBus {
+      override async publish(topic: string, recs: { key: string | null; value: string }[]): Promise<void> {
+        if (topic === 'exposures') now += publishCostMs;
+        return super.publish(topic, recs);
+      }
+    }
+    const bus = new SlowBus();
+    const engine = new FakeEngine();
+    const out = collect(bus, ['exposures']);
+    const runner = new EngineRunner({
+      engine,
+      bus,
+      publishIntervalMs: 100,
+      minPublishIntervalMs: 5,
+      now: () => now,
+    });
+    await runner.start();
+    const published = () => out.filter((r) => r.topic === 'exposures').length;
+    await bus.publish('spots', [spot('AX', 10, now)]);
+    await bus.idle();
+    expect(published()).toBe(2);
+    // Cheap flushes: 10 ms later is past the 5 ms floor, so it goes at once (a fixed 100 ms would hold it).
+    now += 10;
+    publishCostMs = 30;
+    await bus.publish('spots', [spot('AX', 11, now)]);
+    await bus.idle();
+    expect(published()).toBe(4);
+    // That flush took 30 ms: the next waits 30 / 0.2 = 150 ms, capped at publishIntervalMs.
+    now += 50;
+    await bus.publish('spots', [spot('AX', 12, now)]);
+    await bus.idle();
+    expect(published()).toBe(4);
+    now += 60; // 110 ms after the slow flush began: due, one flush with the latest values
+    await bus.publish('spots', [spot('AX', 13, now)]);
+    await bus.idle();
+    expect(published()).toBe(6);
+    await runner.stop();
+    await bus.close();
+  });
+
   it('resolves the batch only after alerts and rejected are acknowledged', async () => {
     const bus = new MemoryBus({ queueCapacity: 1 });
     const engine = new FakeEngine();

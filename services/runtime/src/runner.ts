@@ -19,13 +19,36 @@ import { LatencyWindow } from './latency.ts';
 export type Signal = AlertMsg | StaleFeedMsg;
 export type IngestOutcome = 'accepted' | 'duplicate' | 'rejected';
 
+/** A changed node, read when its flush publishes it (RiskEngine's ExposureView). */
+export interface ExposureSource {
+  readonly key: string;
+  readonly underlying: string | undefined;
+  exposure(): ExposureMsg;
+  /** Exactly JSON.stringify(exposure()). */
+  json(): string;
+}
+
 /** The part of RiskEngine the runner drives (structural, so tests can hand in a fake). */
 export interface RunnerEngine {
   ingest(raw: string, source: string): IngestOutcome;
   revalueAll(): void;
   drain(): { exposures: ExposureMsg[]; alerts: Signal[]; rejected: RejectedMsg[] };
+  /**
+   * Optional, preferred when present: the changed nodes as sources read at flush time, so that
+   * exposures superseded within one publish interval are never built nor serialised.
+   */
+  drainChanged?(): { changed: ExposureSource[]; alerts: Signal[]; rejected: RejectedMsg[] };
   snapshot(): ExposureMsg[];
 }
+
+interface Drained {
+  exposures?: ExposureMsg[];
+  changed?: ExposureSource[];
+  alerts: Signal[];
+  rejected: RejectedMsg[];
+}
+
+type PendingExposure = ExposureMsg | ExposureSource;
 
 /** The part of KeelsonMetrics the runner feeds. */
 export interface RunnerMetrics {
@@ -47,6 +70,13 @@ export interface RunnerOptions {
   outputTopics?: { exposures: string; alerts: string; rejected: string };
   /** Exposures are coalesced per node and published at most this often; 0 publishes every batch. Default 100. */
   publishIntervalMs?: number;
+  /**
+   * When below publishIntervalMs, the interval adapts between the two: after each flush the next
+   * one waits flush cost / PUBLISH_SHARE (publishing takes about a fifth of the time at most), so
+   * under light load exposures leave within a few ms and under heavy load the coalescing widens
+   * up to publishIntervalMs. Default: publishIntervalMs (a fixed interval).
+   */
+  minPublishIntervalMs?: number;
   /** Calls engine.revalueAll() this often (theta, tenor buckets, expiries, staleness); 0 = never (event clock). */
   decayIntervalMs?: number;
   /** Resolve a batch only after the exposure flush that carries it (see the file comment). Default false. */
@@ -95,9 +125,12 @@ export class EngineRunner {
   private readonly engine: RunnerEngine;
   private readonly bus: Bus;
   private readonly topics: { exposures: string; alerts: string; rejected: string };
-  private readonly interval: number;
+  private readonly maxInterval: number;
+  private readonly minInterval: number;
+  /** The current coalescing interval (fixed unless minPublishIntervalMs is below the maximum). */
+  private interval: number;
   private readonly now: () => number;
-  private pending = new Map<string, ExposureMsg>();
+  private pending = new Map<string, PendingExposure>();
   /** Ticks whose exposures wait in `pending`; their latency is taken when that flush is acked. */
   private pendingTicks: PendingTick[] = [];
   private lastFlushAt = Number.NEGATIVE_INFINITY;
@@ -131,7 +164,10 @@ export class EngineRunner {
       alerts: TOPICS.alerts,
       rejected: TOPICS.rejected,
     };
-    this.interval = opts.publishIntervalMs ?? 100;
+    this.maxInterval = opts.publishIntervalMs ?? 100;
+    this.minInterval = Math.min(opts.minPublishIntervalMs ?? this.maxInterval, this.maxInterval);
+    if (!(this.minInterval >= 0)) throw new RangeError('minPublishIntervalMs must be >= 0');
+    this.interval = this.maxInterval;
     this.now = opts.now ?? Date.now;
     this.latency = new LatencyWindow(opts.latencyWindow);
     if (!(this.interval >= 0)) throw new RangeError('publishIntervalMs must be >= 0');
@@ -196,10 +232,10 @@ export class EngineRunner {
       if (outcome === 'accepted' && p.spot)
         ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: r.timestamp });
     }
-    const out = this.engine.drain();
+    const out = this.drainEngine();
     this.opts.metrics?.batchProcessed((performance.now() - t0) / 1000);
-    const rejected = internal.length ? [...out.rejected, ...internal] : out.rejected;
-    await this.absorb({ exposures: out.exposures, alerts: out.alerts, rejected }, ticks);
+    if (internal.length) out.rejected = [...out.rejected, ...internal];
+    await this.absorb(out, ticks);
   }
 
   /** Publishes whatever exposures are waiting, now. */
@@ -232,25 +268,37 @@ export class EngineRunner {
     try {
       this.engine.revalueAll();
       this.counters.decayRuns++;
-      await this.absorb(this.engine.drain(), []);
+      await this.absorb(this.drainEngine(), []);
     } catch (err) {
       this.counters.internalErrors++;
       this.opts.onError?.(err, 'decay');
     }
   }
 
-  private async absorb(out: Published, ticks: PendingTick[]): Promise<void> {
-    for (const e of out.exposures) {
-      // Re-insert so that Map order tracks the latest change and a flush is in change order.
-      this.pending.delete(e.nodeKey);
-      this.pending.set(e.nodeKey, e);
-    }
-    if (ticks.length) {
-      // Only ticks that moved a node of their own underlying have a publication to wait for.
-      const touched = new Set<string>();
-      for (const e of out.exposures) if (e.node.underlying) touched.add(e.node.underlying);
-      for (const t of ticks) if (touched.has(t.underlying)) this.pendingTicks.push(t);
-    }
+  private drainEngine(): Drained {
+    const e = this.engine;
+    if (e.drainChanged) return e.drainChanged();
+    return e.drain();
+  }
+
+  private async absorb(out: Drained, ticks: PendingTick[]): Promise<void> {
+    // Re-insert so that Map order tracks the latest change and a flush is in change order.
+    const pending = this.pending;
+    const touched = ticks.length ? new Set<string>() : null;
+    if (out.exposures)
+      for (const e of out.exposures) {
+        pending.delete(e.nodeKey);
+        pending.set(e.nodeKey, e);
+        if (touched && e.node.underlying) touched.add(e.node.underlying);
+      }
+    if (out.changed)
+      for (const c of out.changed) {
+        pending.delete(c.key);
+        pending.set(c.key, c);
+        if (touched && c.underlying !== undefined) touched.add(c.underlying);
+      }
+    // Only ticks that moved a node of their own underlying have a publication to wait for.
+    if (touched) for (const t of ticks) if (touched.has(t.underlying)) this.pendingTicks.push(t);
     const events: Promise<void>[] = [];
     if (out.alerts.length || out.rejected.length)
       events.push(this.enqueue(() => this.publishEvents(out.alerts, out.rejected)));
@@ -310,24 +358,44 @@ export class EngineRunner {
       for (const w of waiters) w.resolve();
       return;
     }
-    const exposures = [...this.pending.values()];
+    const entries = [...this.pending.values()];
     const ticks = this.pendingTicks;
     this.pending = new Map();
     this.pendingTicks = [];
     this.lastFlushAt = this.now();
+    // A source is read now, at its latest value: the value every exposure it superseded would have
+    // been replaced by anyway (latest wins). Message objects are only built for a listener.
+    const wantObjects = this.opts.onPublished !== undefined;
+    const records = new Array<OutRecord>(entries.length);
+    const exposures: ExposureMsg[] = wantObjects ? new Array<ExposureMsg>(entries.length) : [];
+    for (let k = 0; k < entries.length; k++) {
+      const e = entries[k] as PendingExposure;
+      if (isMsg(e)) {
+        records[k] = { key: e.nodeKey, value: JSON.stringify(e) };
+        if (wantObjects) exposures[k] = e;
+      } else {
+        records[k] = { key: e.key, value: e.json() };
+        if (wantObjects) exposures[k] = e.exposure();
+      }
+    }
     try {
-      await this.bus.publish(
-        this.topics.exposures,
-        exposures.map((e) => ({ key: e.nodeKey, value: JSON.stringify(e) })),
-      );
+      await this.bus.publish(this.topics.exposures, records);
     } catch (err) {
       // Put them back unless a newer value arrived meanwhile: nothing is lost to a failed publish.
-      for (const e of exposures) if (!this.pending.has(e.nodeKey)) this.pending.set(e.nodeKey, e);
+      for (const e of entries) {
+        const key = isMsg(e) ? e.nodeKey : e.key;
+        if (!this.pending.has(key)) this.pending.set(key, e);
+      }
       this.pendingTicks = ticks.concat(this.pendingTicks);
       for (const w of waiters) w.reject(err);
       throw err;
     }
     const wall = this.now();
+    if (this.minInterval < this.maxInterval)
+      this.interval = Math.min(
+        this.maxInterval,
+        Math.max(this.minInterval, (wall - this.lastFlushAt) / PUBLISH_SHARE),
+      );
     const metrics = this.opts.metrics;
     if (this.recordLatency)
       for (const t of ticks) {
@@ -336,7 +404,7 @@ export class EngineRunner {
         metrics?.tickToPublish(t.tickTsMs, wall);
         if (t.busTsMs !== undefined) metrics?.busToPublish(t.busTsMs, wall);
       }
-    this.counters.exposuresPublished += exposures.length;
+    this.counters.exposuresPublished += entries.length;
     this.opts.onPublished?.({ exposures, alerts: [], rejected: [] });
     for (const w of waiters) w.resolve();
   }
@@ -348,6 +416,13 @@ export function originOf(r: BusRecord): string {
   return r.offset === undefined
     ? `${r.topic} partition ${r.partition}`
     : `${r.topic} partition ${r.partition} offset ${r.offset}`;
+}
+
+/** Adaptive interval: the share of wall time a flush (build, serialise, acknowledged publish) may take. */
+const PUBLISH_SHARE = 0.2;
+
+function isMsg(e: PendingExposure): e is ExposureMsg {
+  return (e as ExposureMsg).type === 'exposure';
 }
 
 function signalRecord(a: Signal): OutRecord {
