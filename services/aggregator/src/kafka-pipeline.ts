@@ -245,8 +245,20 @@ class PartitionEngine implements RunnerEngine {
       sourcePartition: this.partition,
       partial: p,
     };
-    // The runner coalesces by nodeKey and reads node.underlying for latency; the value sent is the wire.
-    return { ...wire, nodeKey: wire.key, node: p.node, toJSON: () => wire } as unknown as ExposureMsg;
+    // The runner coalesces by nodeKey and reads node.underlying for latency; the value sent is the
+    // wire. It may also take it for a node source (`type` is not 'exposure'), read at flush time
+    // through key, underlying, json() and exposure(): the carried partial answers both ways.
+    const json = JSON.stringify(wire);
+    const carried = {
+      ...wire,
+      nodeKey: wire.key,
+      node: p.node,
+      underlying: p.node.underlying,
+      toJSON: () => wire,
+      json: () => json,
+      exposure: () => carried,
+    };
+    return carried as unknown as ExposureMsg;
   }
   drain() {
     const d = this.engine.drainPartials();
