@@ -22,6 +22,9 @@ const PER_DAY = 1 / 365;
 const VELTKAMP = 134217729; // 2^27 + 1, as in normal.ts
 const GAUSS_CUTOFF = 40; // exp(-800) is 0 in double
 
+// Scratch for valueRange, which is synchronous and so never shares it.
+const MEMO = new Float64Array(11);
+
 export const PAYOFF_VANILLA = 0;
 export const PAYOFF_CASH = 1;
 export const PAYOFF_ASSET = 2;
@@ -53,13 +56,11 @@ export function valueRange(batch: OptionBatch, out: GreeksBatch, from: number, t
   const oCharm = out.charm;
   // Options of one underlying and expiry share tau, r and b: their discount factors are computed
   // once per run of equal values (the engine revalues an underlying's options together).
-  let lastTau = NaN;
-  let lastR = NaN;
-  let lastB = NaN;
-  let sqrtT = 0;
-  let half = 0;
-  let dfR = 0;
-  let dfQ = 0;
+  // Loop-carried doubles live in MEMO, not in locals: TurboFan kept such locals tagged and boxed
+  // each update as a HeapNumber. Slots: 0-2 last tau, r, b; 3-6 sqrt(tau), 1/(2 tau), e^{-r tau},
+  // e^{(b-r) tau}; 7-10 the CDF arguments (x, Gaussian) for d1 and d2, overwritten by N(x).
+  const m = MEMO;
+  m[0] = NaN;
   for (let i = from; i < to; i++) {
     const isPut = rightA[i]!;
     const payoff = payoffA[i]!;
@@ -98,15 +99,19 @@ export function valueRange(batch: OptionBatch, out: GreeksBatch, from: number, t
       continue;
     }
 
-    if (tau !== lastTau || r !== lastR || b !== lastB) {
-      sqrtT = Math.sqrt(tau);
-      half = 0.5 / tau; // 1/(2 tau)
-      dfR = Math.exp(-r * tau); // e^{-r tau}
-      dfQ = Math.exp((b - r) * tau); // e^{(b-r) tau}
-      lastTau = tau;
-      lastR = r;
-      lastB = b;
+    if (tau !== m[0] || r !== m[1] || b !== m[2]) {
+      m[0] = tau;
+      m[1] = r;
+      m[2] = b;
+      m[3] = Math.sqrt(tau);
+      m[4] = 0.5 / tau; // 1/(2 tau)
+      m[5] = Math.exp(-r * tau); // e^{-r tau}
+      m[6] = Math.exp((b - r) * tau); // e^{(b-r) tau}
     }
+    const sqrtT = m[3]!;
+    const half = m[4]!;
+    const dfR = m[5]!;
+    const dfQ = m[6]!;
     const vst = vol * sqrtT;
     // Reciprocals once: a division costs several multiplications and this loop needs many.
     const iVst = 1 / vst;
@@ -132,10 +137,16 @@ export function valueRange(batch: OptionBatch, out: GreeksBatch, from: number, t
     const g1 = near1 ? gn : (gn * kd) / sd;
     const g2 = near1 ? (gn * sd) / kd : gn;
     const bv = b * iVst;
-    // The two CDF values, each computed only where its payoff needs it; two call sites only, so
-    // V8 inlines the CDF here instead of boxing doubles across a call.
-    const cdf1 = payoff !== PAYOFF_CASH ? normCdfWithGaussian(phi * d1, g1) : 0;
-    const cdf2 = payoff !== PAYOFF_ASSET ? normCdfWithGaussian(phi * d2, g2) : 0;
+    // Both CDF values, from one call site: V8's cumulative inlining budget (920 bytecode bytes)
+    // holds one copy of the CDF with its far tail, not two, and a call that is not inlined boxes
+    // its doubles on the heap. The payoff that needs only one value ignores the other.
+    m[7] = phi * d1;
+    m[8] = g1;
+    m[9] = phi * d2;
+    m[10] = g2;
+    for (let j = 7; j < 11; j += 2) m[j] = normCdfWithGaussian(m[j]!, m[j + 1]!);
+    const cdf1 = m[7]!;
+    const cdf2 = m[9]!;
 
     let price: number;
     let delta: number;

@@ -118,8 +118,6 @@ export function normCdfWithGaussian(x: number, g: number): number {
 
 /** N(-ax) for ax > sqrt(32) (0 past 40, NaN for NaN), given g = exp(-ax^2/2). */
 function farTail(ax: number, g: number): number {
-  if (ax > TAIL_CUTOFF) return 0;
-  if (!(ax > SQRT32)) return NaN; // ax is NaN: let it show rather than guess
   const z = 1 / (ax * ax);
   const z2 = z * z;
   const z4 = z2 * z2;
@@ -127,7 +125,10 @@ function farTail(ax: number, g: number): number {
   // Q(z) = Q4 + Q3 z + Q2 z^2 + Q1 z^3 + Q0 z^4 + z^5
   const num = z * (P4 + P3 * z + z2 * (P2 + P1 * z) + z4 * (P0 + P5 * z));
   const den = Q4 + Q3 * z + z2 * (Q2 + Q1 * z) + z4 * (Q0 + z);
-  return (g * (SQRT_2PI_INV - num / den)) / ax;
+  // One exit, no early constant returns: inlined into the pricer, those made TurboFan box the
+  // result. A NaN ax comes out NaN from the arithmetic.
+  const t = (g * (SQRT_2PI_INV - num / den)) / ax;
+  return ax > TAIL_CUTOFF ? 0 : t;
 }
 
 /** Standard normal distribution function N(x) = P(Z <= x). */
