@@ -197,14 +197,8 @@ const reader = new KafkaBus({
 const pending = new Map<string, number[]>(); // underlying -> publish times of ticks not yet seen valued
 const lat: number[] = [];
 let measuring = false;
-let exposureRecords = 0;
-let exposureBytes = 0;
 await reader.subscribe(['exposures'], async (batch) => {
   const now = Date.now();
-  if (measuring) {
-    exposureRecords += batch.length;
-    for (const r of batch) exposureBytes += r.value.length;
-  }
   for (const r of batch) {
     if (!measuring || !r.key?.startsWith('underlying=') || r.key.includes('/')) continue;
     const e = JSON.parse(r.value) as ExposureMsg;
@@ -249,9 +243,6 @@ console.log(
   `keelson run (role all) drain:  ${engineRate.toFixed(0)} ticks/s (ingest, revalue, publish, ack, commit)`,
 );
 console.log(`ratio engine / bare consumer:  ${(engineRate / bareRate).toFixed(3)}`);
-console.log(
-  `exposures read while measuring: ${(exposureRecords / (LATENCY_SECONDS + 2)).toFixed(0)} records/s, ${(exposureBytes / 1e6 / (LATENCY_SECONDS + 2)).toFixed(1)} MB/s`,
-);
 console.log(
   `tick-to-exposure at ${RATE} ticks/s for ${LATENCY_SECONDS}s: p50 ${pct(50)} ms, p99 ${pct(99)} ms, max ${lat.at(-1)} ms over ${lat.length} ticks (publish interval ${PUBLISH_MS} ms)`,
 );

@@ -155,14 +155,6 @@ function parse(argv: string[], brokers: string): Args | 'help' {
 }
 
 /** Tables every instance reads whole: few keys, replace-whole messages, compacted. */
-/**
- * Engine batches outstanding at once (handled, waiting for their exposure flush and acks, not yet
- * committed). With holdForExposures a batch waits up to a publish interval; at depth 1 the
- * consumer fetched nothing meanwhile, so each tick waited for the previous batch's flush and then
- * its own. Committing still follows the acknowledgements, in order (KafkaBus pipelineDepth).
- */
-const PIPELINE_DEPTH = 8;
-
 const TABLE_TOPICS = [TOPICS.curves, TOPICS.limits];
 /** Keyed inputs, co-partitioned by underlying: partition p of each belongs to one engine. */
 const KEYED_TOPICS = [TOPICS.refdata, TOPICS.vols, TOPICS.spots, TOPICS.trades];
@@ -398,7 +390,6 @@ export async function runKafkaPipeline(opts: {
         },
         {
           rebuild: true,
-          pipelineDepth: PIPELINE_DEPTH,
           onPhase: (e) => {
             if (e.phase === 'restoring') {
               void runner.stop().catch((err: unknown) => onError(err, 'stopping the previous generation'));
@@ -498,7 +489,6 @@ export async function runKafkaPipeline(opts: {
         },
         {
           rebuild: true,
-          pipelineDepth: PIPELINE_DEPTH,
           onPhase: (e) => {
             if (e.phase !== 'restoring') return;
             live = false;

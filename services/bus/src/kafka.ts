@@ -98,17 +98,6 @@ export interface SubscribeOptions {
   /** Called with 'restoring' before the first batch of an assignment, and 'live' as above. */
   onPhase?: (e: PhaseEvent) => void;
   beforeLive?: () => Promise<void>;
-  /**
-   * Live batches whose handlers may be outstanding at once; default 1 (the next batch is fetched
-   * only after the handler resolved). Above 1 a handler is called in order, but the next fetch
-   * does not wait for it to resolve: a handler that waits for acknowledgements (an exposure flush
-   * up to a publish interval away, a produce round trip) no longer stalls the partitions behind it.
-   * Offsets stay at-least-once: a batch is committed only once its own handler and those of every
-   * earlier batch of this consumer have resolved, in delivery order. A handler that rejects stops
-   * all later commits and the next batch fails, so that kafkajs restarts the consumer from the
-   * committed offsets (as a rejecting handler does with depth 1, one batch later).
-   */
-  pipelineDepth?: number;
 }
 
 export interface PhaseEvent {
@@ -155,12 +144,6 @@ interface Member {
   live: boolean;
   /** topic:partition -> next offset to handle (after the last handled batch), for the lag. */
   positions: Map<string, bigint>;
-  /** Pipelined live batches not yet committed, oldest first (see SubscribeOptions.pipelineDepth). */
-  inFlight: Promise<void>[];
-  /** The tail of the commit chain: rejects once a pipelined batch failed. */
-  tail: Promise<void>;
-  /** The failure of a pipelined batch of this generation, thrown at the next batch. */
-  failed: { generation: number; error: unknown } | undefined;
 }
 
 export interface KafkaBusStatus {
@@ -384,11 +367,7 @@ export class KafkaBus implements Bus {
       progress: new Map(),
       live: false,
       positions: new Map(),
-      inFlight: [],
-      tail: Promise.resolve(),
-      failed: undefined,
     };
-    positiveInt('pipelineDepth', opts.pipelineDepth, 1, 1, 1024);
     this.members.push(member);
     this.watch(member);
     this.staleTimer ??= setInterval(() => this.updateConnected(), 1_000);
@@ -443,7 +422,6 @@ export class KafkaBus implements Bus {
       return;
     }
     if (member.opts.rebuild && !member.live) return; // a held-back partition's batch in flight
-    if ((member.opts.pipelineDepth ?? 1) > 1) return this.handlePipelined(member, p, handler, records, generation);
 
     await this.withHeartbeat(p, () =>
       handler(records, { groupId: member.groupId, generation, restoring: false }),
@@ -462,66 +440,6 @@ export class KafkaBus implements Bus {
         ],
       });
     }
-  }
-
-  /**
-   * A live batch whose handler is not waited for here: its offset is resolved at once (so the next
-   * fetch moves on), and committed by the chain once it and every earlier batch have resolved.
-   */
-  private async handlePipelined(
-    member: Member,
-    p: EachBatchPayload,
-    handler: KafkaBatchHandler,
-    records: BusRecord[],
-    generation: number,
-  ): Promise<void> {
-    const depth = member.opts.pipelineDepth ?? 1;
-    const fail = member.failed;
-    if (fail && fail.generation === generation) throw fail.error;
-    const { batch } = p;
-    const next = (BigInt(records[records.length - 1]!.offset!) + 1n).toString();
-    // Called now, in delivery order: the handler's synchronous part (the ingest) keeps that order.
-    const handled = handler(records, { groupId: member.groupId, generation, restoring: false });
-    // Observed by the chain below, possibly later: marked handled now so Node does not abort on it.
-    handled.catch(() => undefined);
-    p.resolveOffset(records[records.length - 1]!.offset!);
-    member.positions.set(`${records[0]!.topic}:${batch.partition}`, BigInt(next));
-    const commit = member.opts.commit ?? true;
-    const prev = member.tail;
-    const step = (async () => {
-      await prev;
-      await handled;
-      if (!commit || member.generation !== generation) return;
-      await member.consumer.commitOffsets([{ topic: batch.topic, partition: batch.partition, offset: next }]);
-    })();
-    member.tail = step;
-    member.inFlight.push(step);
-    step.then(
-      () => member.inFlight.splice(member.inFlight.indexOf(step), 1),
-      (error: unknown) => {
-        member.inFlight.splice(member.inFlight.indexOf(step), 1);
-        if (member.generation !== generation || member.failed) return;
-        member.failed = { generation, error };
-        this.opts.logger?.error(
-          { groupId: member.groupId, err: (error as Error).message },
-          'pipelined batch failed; its offsets and all later ones stay uncommitted',
-        );
-      },
-    );
-    // Back-pressure: no more than `depth` batches outstanding (their records stay in memory).
-    while (member.inFlight.length >= depth) {
-      await Promise.race(member.inFlight).catch(() => undefined);
-      const f = member.failed;
-      if (f && f.generation === generation) throw f.error;
-    }
-  }
-
-  /** Waits (up to `timeoutMs`) for every member's pipelined batches to be committed. */
-  private async drainPipelines(timeoutMs: number): Promise<void> {
-    const all = Promise.allSettled(this.members.flatMap((m) => m.inFlight));
-    let timer: ReturnType<typeof setTimeout> | undefined;
-    await Promise.race([all, new Promise((r) => (timer = setTimeout(r, timeoutMs)))]);
-    clearTimeout(timer);
   }
 
   /** A slow handler (a publish waiting for a broker that came back) must not cost the partition. */
@@ -821,9 +739,6 @@ export class KafkaBus implements Bus {
         }))
         .sort((a, b) => (a.topic < b.topic ? -1 : a.topic > b.topic ? 1 : 0));
       member.positions = new Map();
-      // A new assignment starts from the committed offsets: an old failure or chain is not its own.
-      member.failed = undefined;
-      member.tail = Promise.resolve();
       this.updateConnected();
       this.opts.onRebalance?.({ kind: 'assigned', groupId: member.groupId, assignment: member.assignment });
       if (member.opts.rebuild) {
@@ -972,9 +887,6 @@ export class KafkaBus implements Bus {
     if (this.closed) return;
     this.closed = true;
     clearInterval(this.staleTimer);
-    // Batches already handled but not yet committed: let their acknowledgements and commits land,
-    // rather than leave them to be read again by the next owner.
-    await this.drainPipelines(5_000);
     await Promise.allSettled(this.members.map((m) => m.consumer.disconnect()));
     if (this.adminReady) await this.adminReady.then((a) => a.disconnect()).catch(() => undefined);
     if (this.producerReady) {
