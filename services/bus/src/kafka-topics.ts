@@ -208,18 +208,20 @@ export async function ensureTopics(
       replicationFactor: opts.replicationFactor ?? -1, // -1: the broker's default.replication.factor
       configEntries: Object.entries(s.configs).map(([name, value]) => ({ name, value })),
     }));
+    // A topic counts as created when this call created it. Listing topics right after the
+    // request is no test of that: a KRaft broker may not list a new topic for a moment.
+    let alreadyThere = new Set<string>();
     try {
       // kafkajs's own waitForLeaders retries only LEADER_NOT_AVAILABLE, but a KRaft broker may
       // still answer UNKNOWN_TOPIC_OR_PARTITION for a moment: wait below instead.
       await admin.createTopics({ topics, waitForLeaders: false });
     } catch (e) {
       // Only "already exists" is benign (a concurrent creator); kafkajs reports it per topic.
-      const errors = (e as { errors?: { type?: string }[] }).errors;
+      const errors = (e as { errors?: { type?: string; topic?: string }[] }).errors;
       if (!errors || !errors.every((x) => x.type === 'TOPIC_ALREADY_EXISTS')) throw e;
+      alreadyThere = new Set(errors.map((x) => x.topic ?? ''));
     }
-    const after = new Set(await admin.listTopics());
-    for (const s of missing)
-      if (after.has(prefix + s.name) && !existing.has(prefix + s.name)) created.add(s.name);
+    for (const s of missing) if (!alreadyThere.has(prefix + s.name)) created.add(s.name);
   }
 
   const names = plan.map((s) => prefix + s.name);
