@@ -2,7 +2,7 @@
 // their sum as the node's exposure, and the node's limits checked with the engine's LimitMonitor.
 // A source partition that moves between engine instances is neither lost nor counted twice, because
 // a partial is keyed by (node, source partition): the new owner's partial replaces the old one.
-import { LimitMonitor, exposureFromPartials, seedLimitLevels } from '@keelson/engine';
+import { LimitMonitor, exposureFromPartials, restoreLimitLevels } from '@keelson/engine';
 import type { NodePartial } from '@keelson/engine';
 import { decodeInput, parseTs } from '@keelson/shared-types';
 import type { AlertMsg, ExposureMsg, LimitMsg } from '@keelson/shared-types';
@@ -119,9 +119,9 @@ export class PartialsAggregator {
     return { exposures, alerts };
   }
 
-  /** Continues each limit from its latest published alert (after a rebuild); the limitIds seeded. */
-  seedLevels(latest: Iterable<AlertMsg>): string[] {
-    return seedLimitLevels(this.limits, latest);
+  /** Continues each limit from its latest published alert (after a rebuild); the limitIds restored. */
+  restoreLevels(latest: Iterable<AlertMsg>): string[] {
+    return restoreLimitLevels(this.limits, latest);
   }
 
   /** Marks every node due (after a rebuild: republish the whole picture, recheck every limit). */

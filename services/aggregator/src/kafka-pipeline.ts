@@ -14,7 +14,7 @@
 // limits topics are read. Offsets are committed after the outputs a batch caused are acknowledged.
 import { parseArgs } from 'node:util';
 import { randomBytes } from 'node:crypto';
-import { RiskEngine, WallClock, seedLimitLevels } from '@keelson/engine';
+import { RiskEngine, WallClock, restoreLimitLevels } from '@keelson/engine';
 import type { NodePartial } from '@keelson/engine';
 import { KafkaBus, javaPartition, startLagReporter } from '@keelson/bus';
 import type { BatchContext, BusRecord, KafkaBusLogger } from '@keelson/bus';
@@ -187,7 +187,7 @@ function isConversionSpot(r: BusRecord, rep: string): boolean {
 
 /**
  * The latest alert per limitId on the alerts topic, read to its end: what risk control was last
- * told. A rebuilt limit book continues from it (seedLimitLevels), so a restart or rebalance neither
+ * told. A rebuilt limit book continues from it (restoreLimitLevels), so a restart or rebalance neither
  * raises an open episode again nor starts a new alertId for it. Stale-feed events share the topic
  * and are skipped; a record that is not JSON is skipped too (nothing of ours writes one).
  */
@@ -409,8 +409,8 @@ export async function runKafkaPipeline(opts: {
             }
           },
           beforeLive: async () => {
-            const seeded = seedLimitLevels(engine, (await published).values());
-            log.info({ limits: seeded.length }, 'limit levels continue from the alerts topic');
+            const restored = restoreLimitLevels(engine, (await published).values());
+            log.info({ limits: restored.length }, 'limit levels continue from the alerts topic');
             let total = 0;
             for (const t of [...TABLE_TOPICS, ...KEYED_TOPICS]) total += await bus.partitionCount(t);
             await runner.publishSnapshot();
@@ -607,8 +607,8 @@ export async function runKafkaPipeline(opts: {
           beforeLive: async () => {
             await limitsReady;
             // Limits that arrived while rebuilding were applied then; the published levels win.
-            const seeded = agg.seedLevels((await published).values());
-            log.info({ limits: seeded.length }, 'limit levels continue from the alerts topic');
+            const restored = agg.restoreLevels((await published).values());
+            log.info({ limits: restored.length }, 'limit levels continue from the alerts topic');
             agg.touchAll();
             live = true;
             await out.emit(agg.drain());

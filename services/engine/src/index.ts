@@ -7,4 +7,4 @@ export type { LimitView, MetricValues } from './limits.ts';
 export { boundFor, nextLevel, transitionState, utilization } from './levels.ts';
 export { exposureFromPartials } from './partials.ts';
 export type { NodePartial } from './partials.ts';
-export { episodeOf, seedLimitLevels } from './limit-seed.ts';
+export { episodeOf, restoreLimitLevels } from './limit-restore.ts';

@@ -1,7 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import type { AlertMsg, LimitMsg } from '@keelson/shared-types';
 import { LimitMonitor } from './limits.ts';
-import { seedLimitLevels } from './limit-seed.ts';
+import { restoreLimitLevels } from './limit-restore.ts';
 
 // Levels and transitions as the contract states them (contract-v1.md, "alert"): warnAt 0.8,
 // hysteresis 0.05; in breach u 0.97 stays breach, 0.9 eases to warning, 0.7 clears.
@@ -42,11 +42,11 @@ const published: AlertMsg = {
 };
 const t = Date.parse('2026-03-02T14:01:00Z');
 
-describe('seedLimitLevels', () => {
+describe('restoreLimitLevels', () => {
   it('continues the published episode: same level publishes nothing, a fall clears with its alertId', () => {
     const m = new LimitMonitor();
     m.set(limit);
-    expect(seedLimitLevels(m, [published])).toEqual(['L-KESTREL-PV']);
+    expect(restoreLimitLevels(m, [published])).toEqual(['L-KESTREL-PV']);
     expect(m.openAlerts()).toEqual([published]);
     expect(m.check('desk=KESTREL', values(1100), t)).toEqual([]); // still in breach: nothing
     const [cleared] = m.check('desk=KESTREL', values(100), t);
@@ -59,7 +59,7 @@ describe('seedLimitLevels', () => {
     const m = new LimitMonitor();
     m.set(limit);
     expect(m.check('desk=KESTREL', values(1200), t)[0]).toMatchObject({ alertId: 'L-KESTREL-PV#1' });
-    seedLimitLevels(m, [{ ...published, alertId: 'L-KESTREL-PV#2', severity: 'warning', utilization: 0.85 }]);
+    restoreLimitLevels(m, [{ ...published, alertId: 'L-KESTREL-PV#2', severity: 'warning', utilization: 0.85 }]);
     const [a] = m.check('desk=KESTREL', values(1200), t);
     expect(a).toMatchObject({ alertId: 'L-KESTREL-PV#2', state: 'escalated', previous: 'warning' });
   });
@@ -67,7 +67,7 @@ describe('seedLimitLevels', () => {
   it('a cleared episode leaves the level at ok and the next raise starts the following episode', () => {
     const m = new LimitMonitor();
     m.set(limit);
-    seedLimitLevels(m, [{ ...published, severity: 'ok', previous: 'breach', state: 'cleared' }]);
+    restoreLimitLevels(m, [{ ...published, severity: 'ok', previous: 'breach', state: 'cleared' }]);
     expect(m.openAlerts()).toEqual([]);
     expect(m.check('desk=KESTREL', values(1200), t)[0]).toMatchObject({ alertId: 'L-KESTREL-PV#4' });
   });
@@ -75,8 +75,8 @@ describe('seedLimitLevels', () => {
   it('ignores alerts of limits it does not hold and alertIds of another form', () => {
     const m = new LimitMonitor();
     m.set(limit);
-    expect(seedLimitLevels(m, [{ ...published, limitId: 'L-GONE', alertId: 'L-GONE#1' }])).toEqual([]);
-    expect(seedLimitLevels(m, [{ ...published, alertId: 'something-else' }])).toEqual([]);
+    expect(restoreLimitLevels(m, [{ ...published, limitId: 'L-GONE', alertId: 'L-GONE#1' }])).toEqual([]);
+    expect(restoreLimitLevels(m, [{ ...published, alertId: 'something-else' }])).toEqual([]);
     expect(m.check('desk=KESTREL', values(1200), t)[0]).toMatchObject({ alertId: 'L-KESTREL-PV#1' });
   });
 });

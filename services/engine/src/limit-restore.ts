@@ -1,7 +1,7 @@
 // Alert continuity across restarts: a rebuilt limit book starts from what risk control was last
 // told (the latest alert per limit on the alerts topic), not from what a replay happens to give.
 // A replay coalesces inputs and, on the wall clock, values at another time, so its levels and
-// episode counts can differ from the published ones; seeding makes the first live change continue
+// episode counts can differ from the published ones; restoring them makes the first live change continue
 // the published episode (an `escalated` or `cleared` with the same alertId), and a level that did
 // not change publishes nothing.
 //
@@ -27,14 +27,14 @@ export function episodeOf(alert: Pick<AlertMsg, 'alertId' | 'limitId'>): number 
 
 /**
  * Sets each known limit's level and episode from its latest published alert; returns the limitIds
- * seeded. A limit with no alert keeps its state; an alert for a limit not in the book is ignored
+ * restored. A limit with no alert keeps its state; an alert for a limit not in the book is ignored
  * (it was removed, and its removal cleared it). Call after the rebuild, before going live.
  */
-export function seedLimitLevels(target: LimitMonitor | RiskEngine, latest: Iterable<AlertMsg>): string[] {
+export function restoreLimitLevels(target: LimitMonitor | RiskEngine, latest: Iterable<AlertMsg>): string[] {
   const monitor =
     target instanceof LimitMonitor ? target : (target as unknown as { limitBook: LimitMonitor }).limitBook;
   const states = (monitor as unknown as { limits: Map<string, SeedableState> }).limits;
-  const seeded: string[] = [];
+  const restored: string[] = [];
   for (const a of latest) {
     const st = states.get(a.limitId);
     const n = episodeOf(a);
@@ -42,7 +42,7 @@ export function seedLimitLevels(target: LimitMonitor | RiskEngine, latest: Itera
     st.level = a.state === 'cleared' ? 'ok' : a.severity;
     st.episodes = n;
     st.lastAlert = a;
-    seeded.push(a.limitId);
+    restored.push(a.limitId);
   }
-  return seeded;
+  return restored;
 }
