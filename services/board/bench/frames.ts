@@ -25,11 +25,15 @@ interface FrameStats {
   render: number;
   /** Chromium's own main-thread accounting (CDP Performance.getMetrics), ms per second of run. */
   chromium: Record<string, number>;
+  /** CPU of this Node process (the demo book's ticks and the hub's JSON), ms per second of run. */
+  producerCpu: number;
+  /** The feed worker's parsing and packing, wall ms per second of run (its own thread). */
+  worker: number;
 }
 // ThreadTime is the renderer main thread's CPU time: unlike wall-clock durations it hardly grows
 // when other processes crowd the machine, so it is the figure to compare across runs.
 const CDP_METRICS = ['ThreadTime', 'TaskDuration', 'ScriptDuration', 'RecalcStyleDuration', 'LayoutDuration'];
-type Counters = { nodesMsgs: number; parseMs: number; applyMs: number; renderMs: number };
+type Counters = { nodesMsgs: number; parseMs: number; applyMs: number; renderMs: number; workerMs?: number };
 
 function arg(name: string, fallback: number): number {
   const i = process.argv.indexOf(`--${name}`);
@@ -145,9 +149,16 @@ export async function runFrameBench(
       const snap = (): Promise<Counters> =>
         page.evaluate(() => {
           const c = (window as unknown as { keelsonBoard: { counters: Counters } }).keelsonBoard.counters;
-          return { nodesMsgs: c.nodesMsgs, parseMs: c.parseMs, applyMs: c.applyMs, renderMs: c.renderMs };
+          return {
+            nodesMsgs: c.nodesMsgs,
+            parseMs: c.parseMs,
+            applyMs: c.applyMs,
+            renderMs: c.renderMs,
+            workerMs: c.workerMs ?? 0,
+          };
         });
       const before = await snap();
+      const cpuBefore = process.cpuUsage();
       await page.evaluate(() => {
         const w = window as unknown as { __frames: number[]; __long: number[]; __recording: boolean };
         w.__frames = [];
@@ -174,6 +185,7 @@ export async function runFrameBench(
         w.__recording = false;
         return { frames: w.__frames, long: w.__long };
       });
+      const cpuUsed = process.cpuUsage(cpuBefore);
       const after = await snap();
       const cdpAfter = await cdpMetrics();
       const chromiumMs = Object.fromEntries(
@@ -193,6 +205,8 @@ export async function runFrameBench(
         apply: (after.applyMs - before.applyMs) / seconds,
         render: (after.renderMs - before.renderMs) / seconds,
         chromium: chromiumMs,
+        producerCpu: (cpuUsed.user + cpuUsed.system) / 1000 / seconds,
+        worker: ((after.workerMs ?? 0) - (before.workerMs ?? 0)) / seconds,
       };
     };
 
@@ -226,6 +240,9 @@ export async function printFrameBench(): Promise<void> {
     `${name.padEnd(8)}${CDP_METRICS.map((k) => `${k.replace('Duration', '').replace('ThreadTime', 'CPU')} ${Math.round(s.chromium[k] ?? 0)}`).join('  ')}`;
   process.stdout.write(
     `main thread, chromium's accounting (ms per s):\n${cdpRow('idle', r.idle)}\n${cdpRow('in-page', r.inPage)}\n${cdpRow('sse', r.loaded)}\n`,
+  );
+  process.stdout.write(
+    `beside it, same machine (ms per s): producer process CPU idle ${Math.round(r.idle.producerCpu)}, in-page ${Math.round(r.inPage.producerCpu)}, sse ${Math.round(r.loaded.producerCpu)}; feed worker parse+pack (sse) ${Math.round(r.loaded.worker)}\n`,
   );
   const budget = 1000 / 60;
   process.stdout.write(

@@ -7,18 +7,41 @@
 const METRICS = ['pv', 'pnl', 'delta', 'cashDelta', 'gamma', 'cashGamma', 'vega', 'theta', 'rho'];
 const M = METRICS.length;
 
+// Node keys travel as small integers: each key's text crosses to the page once, the first time
+// it is seen, and the page keeps one string per key. A structured clone of 5 000 fresh key strings
+// per batch would cost the main thread the copy, and every Map lookup on a fresh string its hashing
+// and a full comparison instead of a pointer check. The numbering lives as long as this worker,
+// as does the page's table, so it survives reconnects.
+const keyIds = new Map();
+
 function pack(list) {
   const n = list.length;
-  const keys = new Array(n);
-  const asOf = new Array(n);
+  const ids = new Int32Array(n);
+  const newKeys = [];
+  // A batch carries a handful of distinct asOf stamps: each is sent once, nodes point at it.
+  const asOfTable = [];
+  const asOfSeen = new Map();
+  const asOf = new Int32Array(n);
   const vals = new Float64Array(n * M);
   const positions = new Int32Array(n);
   const stale = new Uint8Array(n);
   const unpriced = [];
   for (let i = 0; i < n; i++) {
     const e = list[i];
-    keys[i] = e.nodeKey;
-    asOf[i] = e.asOf;
+    let id = keyIds.get(e.nodeKey);
+    if (id === undefined) {
+      id = keyIds.size;
+      keyIds.set(e.nodeKey, id);
+      newKeys.push(e.nodeKey);
+    }
+    ids[i] = id;
+    let a = asOfSeen.get(e.asOf);
+    if (a === undefined) {
+      a = asOfTable.length;
+      asOfSeen.set(e.asOf, a);
+      asOfTable.push(e.asOf);
+    }
+    asOf[i] = a;
     for (let m = 0; m < M; m++) {
       const v = e[METRICS[m]];
       // null (delta and gamma where no single underlying) travels as NaN and comes back as null.
@@ -28,7 +51,7 @@ function pack(list) {
     stale[i] = e.stale ? 1 : 0;
     if (e.unpriced && Object.keys(e.unpriced).length > 0) unpriced.push([i, e.unpriced]);
   }
-  return { keys, asOf, vals, positions, stale, unpriced };
+  return { ids, newKeys, asOf, asOfTable, vals, positions, stale, unpriced };
 }
 
 let source = null;
@@ -67,6 +90,12 @@ self.onmessage = (ev) => {
     const packet = pack(list);
     packet.t = 'nodes';
     packet.workerMs = performance.now() - t0;
-    self.postMessage(packet, [packet.vals.buffer, packet.positions.buffer, packet.stale.buffer]);
+    self.postMessage(packet, [
+      packet.ids.buffer,
+      packet.asOf.buffer,
+      packet.vals.buffer,
+      packet.positions.buffer,
+      packet.stale.buffer,
+    ]);
   });
 };

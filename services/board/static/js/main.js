@@ -172,9 +172,14 @@ function streamUrl() {
 const PACKED_METRICS = ['pv', 'pnl', 'delta', 'cashDelta', 'gamma', 'cashGamma', 'vega', 'theta', 'rho'];
 const NO_UNPRICED = Object.freeze({});
 
-/** Rebuilds exposure-shaped objects from the worker's packed batch (only what the page reads). */
-export function unpack(p) {
-  const n = p.keys.length;
+/**
+ * Rebuilds exposure-shaped objects from the worker's packed batch (only what the page reads).
+ * `keyTable` is the page's side of the worker's key numbering (feed-worker.js keyIds): the batch's
+ * first-seen keys are appended to it, in the worker's order.
+ */
+export function unpack(p, keyTable, intern = (k) => k) {
+  for (const k of p.newKeys) keyTable.push(intern(k));
+  const n = p.ids.length;
   const M = PACKED_METRICS.length;
   const out = new Array(n);
   const unpriced = new Map(p.unpriced);
@@ -183,8 +188,8 @@ export function unpack(p) {
     // One object literal with a fixed shape: property reads on these stay monomorphic and fast.
     const e = {
       type: 'exposure',
-      nodeKey: p.keys[i],
-      asOf: p.asOf[i],
+      nodeKey: keyTable[p.ids[i]],
+      asOf: p.asOfTable[p.asOf[i]],
       pv: p.vals[o],
       pnl: p.vals[o + 1],
       delta: Number.isNaN(p.vals[o + 2]) ? null : p.vals[o + 2],
@@ -210,17 +215,30 @@ export function unpack(p) {
 export function eventSource(handlers, counters, onStatus) {
   if (typeof Worker === 'function') {
     const worker = new Worker(new URL('./feed-worker.js', import.meta.url), { type: 'module' });
+    // One string object per node key for the page's lifetime, whichever event named the node first:
+    // the model's Maps then match keys by pointer rather than by hashing and comparing text.
+    const canonical = new Map();
+    const intern = (k) => {
+      const c = canonical.get(k);
+      if (c !== undefined) return c;
+      canonical.set(k, k);
+      return k;
+    };
+    const keyTable = [];
     worker.onmessage = (ev) => {
       const msg = ev.data;
       if (msg.t === 'status') onStatus(msg.state);
       else if (msg.t === 'nodes') {
         const t0 = performance.now();
-        const list = unpack(msg);
+        const list = unpack(msg, keyTable, intern);
         counters.parseMs += performance.now() - t0;
         counters.workerMs = (counters.workerMs ?? 0) + msg.workerMs;
         handlers.nodes(list);
       } else if (msg.t === 'bad') console.error(`keelson board: unreadable ${msg.name} event: ${msg.error}`);
-      else handlers[msg.t]?.(msg.data);
+      else {
+        if (msg.t === 'state') for (const e of msg.data?.exposures ?? []) e.nodeKey = intern(e.nodeKey);
+        handlers[msg.t]?.(msg.data);
+      }
     };
     worker.onerror = (err) => console.error('keelson board: feed worker failed', err.message);
     worker.postMessage({ url: new URL(streamUrl(), location.href).href });
