@@ -59,7 +59,9 @@ describe('restoreLimitLevels', () => {
     const m = new LimitMonitor();
     m.set(limit);
     expect(m.check('desk=KESTREL', values(1200), t)[0]).toMatchObject({ alertId: 'L-KESTREL-PV#1' });
-    restoreLimitLevels(m, [{ ...published, alertId: 'L-KESTREL-PV#2', severity: 'warning', utilization: 0.85 }]);
+    restoreLimitLevels(m, [
+      { ...published, alertId: 'L-KESTREL-PV#2', severity: 'warning', utilization: 0.85 },
+    ]);
     const [a] = m.check('desk=KESTREL', values(1200), t);
     expect(a).toMatchObject({ alertId: 'L-KESTREL-PV#2', state: 'escalated', previous: 'warning' });
   });
