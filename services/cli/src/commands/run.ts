@@ -3,6 +3,7 @@
 // brokers, the Kafka runner of @keelson/bus, which takes its own options.
 import { parseArgs } from 'node:util';
 import type { CommandIo } from '../main.ts';
+import { numberOption, UsageError } from '../options.ts';
 
 const HELP = `usage: keelson run [options]
 
@@ -37,17 +38,8 @@ function positive(
   fallback: number,
   { allowZero = false, integer = false } = {},
 ): number {
-  if (raw === undefined) return fallback;
-  const n = Number(raw);
-  const ok = Number.isFinite(n) && (allowZero ? n >= 0 : n > 0) && (!integer || Number.isInteger(n));
-  if (!ok)
-    throw new UsageError(
-      `--${name} must be ${integer ? 'an integer' : 'a number'} ${allowZero ? '>= 0' : '> 0'}, got '${raw}'`,
-    );
-  return n;
+  return numberOption(name, raw, { min: 0, strict: !allowZero, integer }) ?? fallback;
 }
-
-class UsageError extends Error {}
 
 function brokersFrom(argv: string[]): string | undefined {
   for (let i = 0; i < argv.length; i++) {

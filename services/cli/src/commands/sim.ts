@@ -4,6 +4,7 @@ import { readFile } from 'node:fs/promises';
 import { parseArgs } from 'node:util';
 import type { Bus } from '@keelson/bus';
 import type { CommandIo } from '../main.ts';
+import { numberOption } from '../options.ts';
 
 const HELP = `usage: keelson sim --brokers HOST:PORT[,...] [options]
 
@@ -30,10 +31,7 @@ options:
 `;
 
 function numOpt(name: string, raw: string | undefined, min: number): number | undefined {
-  if (raw === undefined) return undefined;
-  const n = Number(raw);
-  if (!Number.isFinite(n) || n < min) throw new Error(`--${name} must be a number >= ${min}, got '${raw}'`);
-  return n;
+  return numberOption(name, raw, { min });
 }
 
 export async function run(argv: string[], io: CommandIo): Promise<number> {

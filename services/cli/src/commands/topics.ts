@@ -1,6 +1,7 @@
 // `keelson topics`: creates Keelson's topics on a cluster, idempotently, and says what it found.
 import { parseArgs } from 'node:util';
 import type { CommandIo } from '../main.ts';
+import { numberOption } from '../options.ts';
 
 const HELP = `usage: keelson topics [options]
 
@@ -24,11 +25,7 @@ shape that breaks correctness (cleanup policy, or co-partitioned inputs of unequ
 `;
 
 function intOption(name: string, raw: string | undefined, min: number): number | undefined {
-  if (raw === undefined) return undefined;
-  const n = Number(raw);
-  if (!Number.isInteger(n) || n < min)
-    throw new Error(`--${name} must be an integer >= ${min}, got '${raw}'`);
-  return n;
+  return numberOption(name, raw, { min, integer: true });
 }
 
 export async function run(argv: string[], io: CommandIo): Promise<number> {
@@ -64,10 +61,7 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
   try {
     const partitions = intOption('partitions', values.partitions, 1);
     replicationFactor = intOption('replication-factor', values['replication-factor'], 1);
-    const retention = values['retention-days'];
-    const retentionDays = retention === undefined ? undefined : Number(retention);
-    if (retentionDays !== undefined && !(retentionDays > 0))
-      throw new Error(`--retention-days must be a number > 0, got '${retention}'`);
+    const retentionDays = numberOption('retention-days', values['retention-days'], { min: 0, strict: true });
     plan = topicPlan({
       ...(partitions !== undefined ? { partitions } : {}),
       ...(retentionDays !== undefined ? { retentionDays } : {}),
