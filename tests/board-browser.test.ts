@@ -204,6 +204,34 @@ describe.skipIf(!available)('desk view in chromium', () => {
     expect(flash).toBeGreaterThan(0);
   });
 
+  it('reads the stream again after a reconnect, under the new connection’s key numbering', async () => {
+    // The hub numbers node keys per connection (sse.ts, the nodes event). Dropping the connection
+    // makes the browser reconnect after the stream's retry delay, and the new numbering starts at 0
+    // with whichever node is published first: here a leaf that had another id before.
+    const firstKey = book.exposures()[0]!.nodeKey;
+    expect(firstKey).not.toBe(pelican);
+    server.server.closeAllConnections();
+    await expect.poll(() => hub.stats().clients, { timeout: 10_000 }).toBe(0);
+    await expect.poll(() => hub.stats().clients, { timeout: 10_000 }).toBe(1);
+    await expect.poll(() => page.locator('#conn').getAttribute('data-state')).toBe('live');
+    const firstShown = await cell(firstKey, 'pv').textContent();
+    let leaf: ExposureMsg | undefined;
+    for (let i = 0; i < 20; i++) {
+      book.tick(1000);
+      leaf = valid.exposure(book.exposures().find((e) => e.nodeKey === pelican)!);
+      hub.publishExposure(leaf); // id 0 on this connection
+      await page.waitForTimeout(120);
+      const text = (await cell(pelican, 'pv').textContent()) ?? '';
+      if (Math.abs(readFigure(text) - leaf.pv) <= Math.abs(leaf.pv) * 0.005) break;
+    }
+    expect(
+      Math.abs(readFigure((await cell(pelican, 'pv').textContent()) ?? '') - leaf!.pv),
+    ).toBeLessThanOrEqual(Math.abs(leaf!.pv) * 0.005);
+    // The node that was id 0 before still shows its own figure, not the leaf's.
+    expect(await cell(firstKey, 'pv').textContent()).toBe(firstShown);
+    publishAll();
+  });
+
   it('puts a limit breach in the alert panel, on the limit bar and in the assertive live region', async () => {
     book.bumpVega('ORCA', Math.sign(orcaVega()) * vegaLimit.max! * 0.5);
     publishAll();

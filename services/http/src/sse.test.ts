@@ -4,7 +4,7 @@ import { connect as tcpConnect } from 'node:net';
 import type { AddressInfo } from 'node:net';
 import { afterEach, describe, expect, it, vi } from 'vitest';
 import type { AlertMsg, ExposureMsg, StaleFeedMsg } from '@keelson/shared-types';
-import { SseHub, type LimitView } from './sse.ts';
+import { NODE_ROW_FIELDS, SseHub, type LimitView } from './sse.ts';
 
 // Parses a text/event-stream body by the rules of the WHATWG HTML Living Standard, section
 // "Server-sent events / Interpreting an event stream": lines split on LF, a blank line dispatches,
@@ -44,6 +44,45 @@ function parseStream(body: string): { events: ParsedEvent[]; comments: string[];
   }
   return { events, comments, ...(retry === undefined ? {} : { retry }) };
 }
+
+/**
+ * Reads `nodes` events back into exposures by the format written in sse.ts's file comment, with a
+ * dictionary per connection as a browser keeps it. Only what the compact event carries is
+ * compared: currency and dimensions stay on the state event.
+ */
+type Decoded = Pick<ExposureMsg, 'nodeKey' | 'asOf' | 'unpriced'> & Record<string, unknown>;
+class NodesReader {
+  keys = new Map<number, string>();
+  read(data: string): Decoded[] {
+    const p = JSON.parse(data) as {
+      keys: [number, string][];
+      asOf: string[];
+      rows: unknown[][];
+      unpriced: [number, Record<string, number>][];
+    };
+    for (const [id, key] of p.keys) {
+      expect(this.keys.has(id)).toBe(false); // each key is named once per connection
+      this.keys.set(id, key);
+    }
+    const unpriced = new Map(p.unpriced);
+    return p.rows.map((row) => {
+      expect(row).toHaveLength(2 + NODE_ROW_FIELDS.length);
+      const out: Decoded = {
+        nodeKey: this.keys.get(row[0] as number)!,
+        asOf: p.asOf[row[1] as number]!,
+        unpriced: unpriced.get(row[0] as number) ?? {},
+      };
+      NODE_ROW_FIELDS.forEach((f, i) => (out[f] = row[2 + i]));
+      out.stale = out.stale === 1;
+      return out;
+    });
+  }
+}
+const compactOf = (e: ExposureMsg): Decoded => {
+  const out: Decoded = { nodeKey: e.nodeKey, asOf: e.asOf, unpriced: e.unpriced };
+  for (const f of NODE_ROW_FIELDS) out[f] = e[f];
+  return out;
+};
 
 /** A response whose socket accepts `capacity` more writes and then reports itself full. */
 class FakeResponse extends EventEmitter {
@@ -190,7 +229,7 @@ describe('SseHub', () => {
     const events = res.parsed();
     expect(events).toHaveLength(2);
     expect(events[1]!.event).toBe('nodes');
-    const nodes = JSON.parse(events[1]!.data) as ExposureMsg[];
+    const nodes = new NodesReader().read(events[1]!.data);
     expect(nodes.map((n) => [n.nodeKey, n.pv])).toEqual([
       ['desk=ORCA', 3],
       ['firm', 10],
@@ -239,7 +278,7 @@ describe('SseHub', () => {
     const caughtUp = slow.parsed().slice(1);
     expect(caughtUp.map((e) => e.event)).toEqual(['signal', 'nodes']);
     expect(JSON.parse(caughtUp[0]!.data).state).toBe('raised');
-    const nodes = JSON.parse(caughtUp[1]!.data) as ExposureMsg[];
+    const nodes = new NodesReader().read(caughtUp[1]!.data);
     expect(nodes.map((n) => [n.nodeKey, n.pv])).toEqual([
       ['desk=ORCA', 1000],
       ['firm', -1000],
@@ -273,6 +312,93 @@ describe('SseHub', () => {
     for (let i = 0; i < 20; i++) hub.publishAlert(alert(i, 'raised', '2026-03-02T14:30:01.000Z'));
     expect(dead.destroyed).toBe(true);
     expect(hub.stats()).toMatchObject({ clients: 0, evicted: 1 });
+  });
+
+  it('sends nodes compact: each key once with an id, then the id; every value exactly as published', () => {
+    const hub = makeHub();
+    const res = connect(hub);
+    const reader = new NodesReader();
+    // Values with full double precision, a negative zero-crossing and the contract's nulls.
+    const leaf = {
+      ...exposure('desk=ORCA/book=ORCA-1/underlying=PELICAN', 1234567.8901234567),
+      pnl: -0.1 - 0.2,
+      delta: 12_345.678901234,
+      gamma: -3.0000000000000004e-7,
+      cashDelta: 1e21,
+      vega: -98765.4321,
+      theta: -1.5e-300,
+      rho: 5e-324,
+      positions: 17,
+      stale: true,
+      unpriced: { 'no-vol': 2, 'no-spot': 1 },
+    } as ExposureMsg;
+    const firm = { ...exposure('firm', -42.5), asOf: '2026-03-02T14:30:00.100Z' } as ExposureMsg;
+    hub.publishExposure(leaf);
+    hub.publishExposure(firm);
+    hub.flushAll();
+    const first = res.parsed()[1]!;
+    expect(first.event).toBe('nodes');
+    const payload = JSON.parse(first.data);
+    expect(payload.keys).toEqual([
+      [0, 'desk=ORCA/book=ORCA-1/underlying=PELICAN'],
+      [1, 'firm'],
+    ]);
+    expect(payload.asOf).toEqual(['2026-03-02T14:30:00.000Z', '2026-03-02T14:30:00.100Z']);
+    expect(payload.rows[1]).toEqual([1, 1, -42.5, 0, null, 0, null, 0, 0, 0, 0, 1, 0]);
+    expect(reader.read(first.data)).toEqual([compactOf(leaf), compactOf(firm)]);
+
+    // Next flush: ids only, no keys; a node whose unpriced positions priced again has no entry.
+    const later = { ...leaf, pv: 7, unpriced: {}, stale: false } as ExposureMsg;
+    hub.publishExposure(later);
+    hub.flushAll();
+    const second = res.parsed()[2]!;
+    expect(JSON.parse(second.data)).toMatchObject({ keys: [], unpriced: [] });
+    expect(second.data).not.toContain('PELICAN');
+    expect(reader.read(second.data)).toEqual([compactOf(later)]);
+  });
+
+  it('gives every connection its own dictionary, so a reconnecting page starts from a fresh state', () => {
+    const hub = makeHub();
+    const a = connect(hub);
+    hub.publishExposure(exposure('desk=ORCA', 1));
+    hub.flushAll();
+    const b = connect(hub); // a reconnect is a new connection: state first, then keys from 0
+    hub.publishExposure(exposure('firm', 2));
+    hub.publishExposure(exposure('desk=ORCA', 3));
+    hub.flushAll();
+    expect(b.parsed().map((e) => e.event)).toEqual(['state', 'nodes']);
+    expect(JSON.parse(b.parsed()[1]!.data).keys).toEqual([
+      [0, 'firm'],
+      [1, 'desk=ORCA'],
+    ]);
+    expect(JSON.parse(a.parsed()[2]!.data).keys).toEqual([[1, 'firm']]);
+    const readA = new NodesReader();
+    const fromA = a
+      .parsed()
+      .slice(1)
+      .flatMap((e) => readA.read(e.data));
+    expect(fromA.map((n) => [n.nodeKey, n.pv])).toEqual([
+      ['desk=ORCA', 1],
+      ['firm', 2],
+      ['desk=ORCA', 3],
+    ]);
+  });
+
+  it('serialises a published exposure once however many clients send it', () => {
+    const hub = makeHub();
+    const clients = [connect(hub), connect(hub), connect(hub)];
+    const e = exposure('firm', 0.1 + 0.2);
+    const spy = vi.spyOn(JSON, 'stringify');
+    hub.publishExposure(e);
+    hub.flushAll();
+    // One for the row's numbers, one per client for its asOf table; the key is per client too.
+    const rowCalls = spy.mock.calls.filter(
+      (c) => Array.isArray(c[0]) && c[0].length === NODE_ROW_FIELDS.length,
+    );
+    spy.mockRestore();
+    expect(rowCalls).toHaveLength(1);
+    for (const c of clients)
+      expect(new NodesReader().read(c.parsed()[1]!.data)[0]!.pv).toBe(0.30000000000000004);
   });
 
   it('sends limit views coalesced per limit', () => {
@@ -367,7 +493,8 @@ describe('SseHub', () => {
       // 50 nodes, not 10 000 messages.
       expect(hub.stats().coalesced - before).toBe(10_000 - 50);
       sock.resume();
-      await expect.poll(() => received.includes(`"pv":${i}`), { timeout: 10_000 }).toBe(true);
+      // The last value of the last node: its row is [id, asOf index, pv, ...].
+      await expect.poll(() => received.includes(`,0,${i},`), { timeout: 10_000 }).toBe(true);
     } finally {
       sock.destroy();
       hub.close();
@@ -394,7 +521,7 @@ describe('SseHub', () => {
       hub.publishExposure(exposure('firm', 42));
       await waitFor(() => text.includes('event: nodes'));
       const nodes = parseStream(text).events.find((e) => e.event === 'nodes')!;
-      expect(JSON.parse(nodes.data)[0].pv).toBe(42);
+      expect(new NodesReader().read(nodes.data)[0]!.pv).toBe(42);
       await reader.cancel();
     } finally {
       hub.close();

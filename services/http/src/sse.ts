@@ -4,10 +4,25 @@
 //
 // Wire format (event names are ours; every `data:` is one JSON document on one line):
 //   event: state    {"sentAt":ms,"exposures":[...],"alerts":[...],"limits":[...]}   once, on connect
-//   event: nodes    [ExposureMsg, ...]     the latest value of every node that changed since the last flush
+//   event: nodes    the latest value of every node that changed since the last flush, compact (below)
 //   event: signal   AlertMsg | StaleFeedMsg  one per event, in publish order, never coalesced
 //   event: bounds   [LimitView, ...]       limits whose view changed since the last flush
 //   `: keepalive`   comment every 15 s so proxies and the browser keep the stream open
+//
+// The `nodes` event is this stream's own compact form, not the bus contract's exposure message:
+// it is the heavy event (every node, ten times a second), and full exposure JSON made the hub's
+// serialising and the browser's parsing the largest costs of the live view. It reads
+//   {"keys":[[id,"nodeKey"],...],"asOf":["ISO time",...],"rows":[row,...],"unpriced":[[id,{reason:n}],...]}
+//   row = [id, asOfIndex, pv, pnl, delta, cashDelta, gamma, cashGamma, vega, theta, rho, positions, stale]
+// - `id` is a small integer this connection gives a node key. `keys` carries each key once, in the
+//   first nodes event that names it; later events name the node by id only. Ids are valid for one
+//   connection: a reconnecting browser gets a fresh `state` event and a fresh dictionary from 0.
+// - `asOfIndex` points into the event's `asOf` table (a flush holds a handful of distinct stamps).
+// - The numbers are the exposure's own, unrounded (JSON's shortest round-trip form); `delta` and
+//   `gamma` are null where the node fixes no single underlying; `stale` is 1 or 0.
+// - `unpriced` lists only nodes with unpriced positions; a row without an entry has none.
+// Currency and dimensions are left out: the page shows neither per row, and the dimensions follow
+// from the key (contract node keys). Full exposures remain on the state event and on /exposures.
 import type { IncomingMessage, ServerResponse } from 'node:http';
 import type { AlertMsg, ExposureMsg, Metric, StaleFeedMsg } from '@keelson/shared-types';
 
@@ -52,6 +67,21 @@ export interface SseHubOptions {
   maxBacklogBytes?: number;
 }
 
+/** The fields of a `nodes` row after its id and asOf index, in wire order. */
+export const NODE_ROW_FIELDS = [
+  'pv',
+  'pnl',
+  'delta',
+  'cashDelta',
+  'gamma',
+  'cashGamma',
+  'vega',
+  'theta',
+  'rho',
+  'positions',
+  'stale',
+] as const;
+
 export interface SseHubStats {
   clients: number;
   /** Exposures replaced in a client's buffer before they were sent (per client, summed). */
@@ -73,6 +103,14 @@ interface Client {
   backlogBytes: number;
   /** True after res.write returned false, until 'drain'. */
   stalled: boolean;
+  /** nodeKey -> the id this connection knows it by (the `keys` dictionary of the nodes event). */
+  keyIds: Map<string, number>;
+}
+
+/** The part of a node's row every client shares: its numbers as JSON text, and its unpriced map. */
+interface SharedRow {
+  values: string;
+  unpriced: string | undefined;
 }
 
 const HEADERS = {
@@ -105,8 +143,9 @@ export class SseHub {
   private signalSeq = 0;
   private closed = false;
   private readonly counters = { coalesced: 0, stalls: 0, evicted: 0, rejectedClients: 0 };
-  /** One serialization per exposure object, shared by every client that sends it. */
+  /** One serialization per published object, shared by every client that sends it. */
   private serialized = new WeakMap<object, string>();
+  private sharedRows = new WeakMap<ExposureMsg, SharedRow>();
 
   constructor(opts: SseHubOptions = {}) {
     this.flushIntervalMs = opts.flushIntervalMs ?? 100;
@@ -179,6 +218,7 @@ export class SseHub {
       backlog: [],
       backlogBytes: 0,
       stalled: false,
+      keyIds: new Map(),
     };
     this.clients.add(client);
     const drop = (): void => {
@@ -251,10 +291,9 @@ export class SseHub {
     }
     if (c.stalled) return;
     if (c.pendingNodes.size > 0) {
-      const parts: string[] = [];
-      for (const e of c.pendingNodes.values()) parts.push(this.json(e));
+      const text = this.nodesJson(c);
       c.pendingNodes.clear();
-      this.write(c, frame('nodes', `[${parts.join(',')}]`));
+      this.write(c, frame('nodes', text));
     }
     if (!c.stalled && c.pendingBounds.size > 0) {
       const parts: string[] = [];
@@ -262,6 +301,62 @@ export class SseHub {
       c.pendingBounds.clear();
       this.write(c, frame('bounds', `[${parts.join(',')}]`));
     }
+  }
+
+  /** The compact nodes event for one client (format in the file comment); O(pending nodes). */
+  private nodesJson(c: Client): string {
+    const keys: string[] = [];
+    const asOfs: string[] = [];
+    const asOfIndex = new Map<string, number>();
+    const rows: string[] = [];
+    const unpriced: string[] = [];
+    // Nearly every node of a flush carries one of very few stamps, usually the one before it.
+    let lastAsOf: string | undefined;
+    let lastIndex = 0;
+    for (const e of c.pendingNodes.values()) {
+      let id = c.keyIds.get(e.nodeKey);
+      if (id === undefined) {
+        id = c.keyIds.size;
+        c.keyIds.set(e.nodeKey, id);
+        keys.push(`[${id},${JSON.stringify(e.nodeKey)}]`);
+      }
+      if (e.asOf !== lastAsOf) {
+        lastAsOf = e.asOf;
+        const known = asOfIndex.get(e.asOf);
+        if (known === undefined) {
+          lastIndex = asOfs.push(e.asOf) - 1;
+          asOfIndex.set(e.asOf, lastIndex);
+        } else lastIndex = known;
+      }
+      const shared = this.sharedRow(e);
+      rows.push(`[${id},${lastIndex},${shared.values}]`);
+      if (shared.unpriced !== undefined) unpriced.push(`[${id},${shared.unpriced}]`);
+    }
+    return `{"keys":[${keys.join(',')}],"asOf":${JSON.stringify(asOfs)},"rows":[${rows.join(',')}],"unpriced":[${unpriced.join(',')}]}`;
+  }
+
+  private sharedRow(e: ExposureMsg): SharedRow {
+    let r = this.sharedRows.get(e);
+    if (r === undefined) {
+      // An array literal through JSON.stringify formats numbers faster than a template string does.
+      const text = JSON.stringify([
+        e.pv,
+        e.pnl,
+        e.delta,
+        e.cashDelta,
+        e.gamma,
+        e.cashGamma,
+        e.vega,
+        e.theta,
+        e.rho,
+        e.positions,
+        e.stale ? 1 : 0,
+      ]);
+      const unpriced = Object.keys(e.unpriced).length > 0 ? JSON.stringify(e.unpriced) : undefined;
+      r = { values: text.slice(1, -1), unpriced };
+      this.sharedRows.set(e, r);
+    }
+    return r;
   }
 
   private json(o: object): string {

@@ -1,56 +1,91 @@
 /* global EventSource, performance, self -- browser globals: this file runs in the page */
-// Reads the event stream off the main thread. The heavy event is `nodes` (thousands of exposures
-// ten times a second): it is parsed here and handed over packed, numbers in one transferable
-// Float64Array, so the page's main thread spends its time drawing rather than parsing JSON.
-// The rare events (state, signal, bounds) are passed on as parsed objects.
+// Reads the event stream off the main thread. The heavy event is `nodes` (thousands of nodes ten
+// times a second, in the hub's compact form: wire.js): it is parsed here and handed over packed,
+// numbers in one transferable Float64Array, so the page's main thread spends its time drawing
+// rather than parsing JSON. The rare events (state, signal, bounds) are passed on as parsed objects.
+import { NodeDictionary, ROW_METRICS } from './wire.js';
 
-const METRICS = ['pv', 'pnl', 'delta', 'cashDelta', 'gamma', 'cashGamma', 'vega', 'theta', 'rho'];
-const M = METRICS.length;
+const M = ROW_METRICS;
 
-// Node keys travel as small integers: each key's text crosses to the page once, the first time
-// it is seen, and the page keeps one string per key. A structured clone of 5 000 fresh key strings
-// per batch would cost the main thread the copy, and every Map lookup on a fresh string its hashing
-// and a full comparison instead of a pointer check. The numbering lives as long as this worker,
-// as does the page's table, so it survives reconnects.
+// Node keys cross to the page as small integers of this worker's own numbering: each key's text
+// crosses once, the first time it is seen, and the page keeps one string per key. A structured
+// clone of 5 000 fresh key strings per batch would cost the main thread the copy, and every Map
+// lookup on a fresh string its hashing and a full comparison instead of a pointer check. This
+// numbering lives as long as the worker, as does the page's table, so it survives reconnects; the
+// hub's own numbering (wire ids) lasts one connection and is mapped onto it.
 const keyIds = new Map();
+const wire = new NodeDictionary();
+/** wire id -> page id, for the current connection. */
+let pageIdOf = [];
 
-function pack(list) {
-  const n = list.length;
+function pageId(wireId, newKeys) {
+  let id = pageIdOf[wireId];
+  if (id !== undefined) return id;
+  const key = wire.keys[wireId];
+  id = keyIds.get(key);
+  if (id === undefined) {
+    id = keyIds.size;
+    keyIds.set(key, id);
+    newKeys.push(key);
+  }
+  pageIdOf[wireId] = id;
+  return id;
+}
+
+/** Packs one parsed nodes payload; `problems` collects rows it had to leave out. */
+function pack(payload, problems) {
+  const shape = wire.learn(payload);
+  if (shape) {
+    problems.push(shape);
+    return null;
+  }
+  const rows = payload.rows;
+  const asOfTable = payload.asOf;
+  const n = rows.length;
   const ids = new Int32Array(n);
   const newKeys = [];
-  // A batch carries a handful of distinct asOf stamps: each is sent once, nodes point at it.
-  const asOfTable = [];
-  const asOfSeen = new Map();
   const asOf = new Int32Array(n);
   const vals = new Float64Array(n * M);
   const positions = new Int32Array(n);
   const stale = new Uint8Array(n);
+  const unpricedByWire = new Map();
+  for (const u of payload.unpriced ?? []) if (Array.isArray(u)) unpricedByWire.set(u[0], u[1]);
   const unpriced = [];
-  for (let i = 0; i < n; i++) {
-    const e = list[i];
-    let id = keyIds.get(e.nodeKey);
-    if (id === undefined) {
-      id = keyIds.size;
-      keyIds.set(e.nodeKey, id);
-      newKeys.push(e.nodeKey);
+  let k = 0;
+  for (let r = 0; r < n; r++) {
+    const row = rows[r];
+    const problem = wire.rowProblem(row, r, asOfTable.length);
+    if (problem) {
+      problems.push(problem);
+      continue;
     }
-    ids[i] = id;
-    let a = asOfSeen.get(e.asOf);
-    if (a === undefined) {
-      a = asOfTable.length;
-      asOfSeen.set(e.asOf, a);
-      asOfTable.push(e.asOf);
-    }
-    asOf[i] = a;
+    ids[k] = pageId(row[0], newKeys);
+    asOf[k] = row[1];
+    const o = k * M;
     for (let m = 0; m < M; m++) {
-      const v = e[METRICS[m]];
+      const v = row[2 + m];
       // null (delta and gamma where no single underlying) travels as NaN and comes back as null.
-      vals[i * M + m] = typeof v === 'number' ? v : NaN;
+      vals[o + m] = v === null ? NaN : v;
     }
-    positions[i] = e.positions;
-    stale[i] = e.stale ? 1 : 0;
-    if (e.unpriced && Object.keys(e.unpriced).length > 0) unpriced.push([i, e.unpriced]);
+    positions[k] = row[11];
+    stale[k] = row[12] === 1 ? 1 : 0;
+    if (unpricedByWire.size > 0) {
+      const u = unpricedByWire.get(row[0]);
+      if (u !== undefined) unpriced.push([k, u]);
+    }
+    k++;
   }
+  if (k < n)
+    return {
+      ids: ids.slice(0, k),
+      newKeys,
+      asOf: asOf.slice(0, k),
+      asOfTable,
+      vals: vals.slice(0, k * M),
+      positions: positions.slice(0, k),
+      stale: stale.slice(0, k),
+      unpriced,
+    };
   return { ids, newKeys, asOf, asOfTable, vals, positions, stale, unpriced };
 }
 
@@ -68,6 +103,11 @@ self.onmessage = (ev) => {
   );
   for (const name of ['state', 'signal', 'bounds']) {
     es.addEventListener(name, (e) => {
+      // Every connection opens with a state event: the hub's key numbering starts over with it.
+      if (name === 'state') {
+        wire.reset();
+        pageIdOf = [];
+      }
       let data;
       try {
         data = JSON.parse(e.data);
@@ -80,14 +120,22 @@ self.onmessage = (ev) => {
   }
   es.addEventListener('nodes', (e) => {
     const t0 = performance.now();
-    let list;
+    let payload;
     try {
-      list = JSON.parse(e.data);
+      payload = JSON.parse(e.data);
     } catch (err) {
       self.postMessage({ t: 'bad', name: 'nodes', error: String(err) });
       return;
     }
-    const packet = pack(list);
+    const problems = [];
+    const packet = pack(payload, problems);
+    if (problems.length > 0)
+      self.postMessage({
+        t: 'bad',
+        name: 'nodes',
+        error: `${problems.length} row(s) left out: ${problems.slice(0, 3).join('; ')}`,
+      });
+    if (packet === null || packet.ids.length === 0) return;
     packet.t = 'nodes';
     packet.workerMs = performance.now() - t0;
     self.postMessage(packet, [

@@ -10,6 +10,7 @@ import { LimitsView } from './limits-view.js';
 import { SignalsView } from './signals-view.js';
 import { Chart } from './chart.js';
 import { initTheme } from './theme.js';
+import { NodeDictionary, ROW_METRICS, decodeNodes } from './wire.js';
 
 const $ = (id) => document.getElementById(id);
 
@@ -168,8 +169,6 @@ function streamUrl() {
   return token ? `/events?access_token=${encodeURIComponent(token)}` : '/events';
 }
 
-// The worker's packing order (feed-worker.js METRICS).
-const PACKED_METRICS = ['pv', 'pnl', 'delta', 'cashDelta', 'gamma', 'cashGamma', 'vega', 'theta', 'rho'];
 const NO_UNPRICED = Object.freeze({});
 
 /**
@@ -180,7 +179,8 @@ const NO_UNPRICED = Object.freeze({});
 export function unpack(p, keyTable, intern = (k) => k) {
   for (const k of p.newKeys) keyTable.push(intern(k));
   const n = p.ids.length;
-  const M = PACKED_METRICS.length;
+  // The worker packs the row's metrics (wire.js ROW_FIELDS, pv .. rho) in wire order.
+  const M = ROW_METRICS;
   const out = new Array(n);
   const unpriced = new Map(p.unpriced);
   for (let i = 0; i < n; i++) {
@@ -248,12 +248,23 @@ export function eventSource(handlers, counters, onStatus) {
   const es = new EventSource(streamUrl());
   es.addEventListener('open', () => onStatus('live'));
   es.addEventListener('error', () => onStatus(es.readyState === EventSource.CLOSED ? 'closed' : 'retrying'));
+  const dict = new NodeDictionary();
   for (const [name, fn] of Object.entries(handlers)) {
     es.addEventListener(name, (ev) => {
+      // Every connection opens with a state event: the hub's key numbering starts over with it.
+      if (name === 'state') dict.reset();
       let data;
       const t0 = performance.now();
       try {
         data = JSON.parse(ev.data);
+        if (name === 'nodes') {
+          const { list, problems } = decodeNodes(data, dict);
+          if (problems.length)
+            console.error(
+              `keelson board: ${problems.length} node row(s) left out: ${problems.slice(0, 3).join('; ')}`,
+            );
+          data = list;
+        }
         counters.parseMs += performance.now() - t0;
       } catch (err) {
         console.error(`keelson board: unreadable ${name} event`, err);
