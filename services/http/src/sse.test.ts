@@ -384,23 +384,6 @@ describe('SseHub', () => {
     ]);
   });
 
-  it('serialises a published exposure once however many clients send it', () => {
-    const hub = makeHub();
-    const clients = [connect(hub), connect(hub), connect(hub)];
-    const e = exposure('firm', 0.1 + 0.2);
-    const spy = vi.spyOn(JSON, 'stringify');
-    hub.publishExposure(e);
-    hub.flushAll();
-    // One for the row's numbers, one per client for its asOf table; the key is per client too.
-    const rowCalls = spy.mock.calls.filter(
-      (c) => Array.isArray(c[0]) && c[0].length === NODE_ROW_FIELDS.length,
-    );
-    spy.mockRestore();
-    expect(rowCalls).toHaveLength(1);
-    for (const c of clients)
-      expect(new NodesReader().read(c.parsed()[1]!.data)[0]!.pv).toBe(0.30000000000000004);
-  });
-
   it('sends limit views coalesced per limit', () => {
     const hub = makeHub();
     const res = connect(hub);

@@ -107,10 +107,9 @@ interface Client {
   keyIds: Map<string, number>;
 }
 
-/** The part of a node's row every client shares: its numbers as JSON text, and its unpriced map. */
-interface SharedRow {
-  values: string;
-  unpriced: string | undefined;
+function hasKeys(o: object): boolean {
+  for (const _ in o) return true;
+  return false;
 }
 
 const HEADERS = {
@@ -145,7 +144,6 @@ export class SseHub {
   private readonly counters = { coalesced: 0, stalls: 0, evicted: 0, rejectedClients: 0 };
   /** One serialization per published object, shared by every client that sends it. */
   private serialized = new WeakMap<object, string>();
-  private sharedRows = new WeakMap<ExposureMsg, SharedRow>();
 
   constructor(opts: SseHubOptions = {}) {
     this.flushIntervalMs = opts.flushIntervalMs ?? 100;
@@ -303,13 +301,17 @@ export class SseHub {
     }
   }
 
-  /** The compact nodes event for one client (format in the file comment); O(pending nodes). */
+  /**
+   * The compact nodes event for one client (format in the file comment); O(pending nodes). The rows
+   * go through one JSON.stringify as one array: measured at 5 000 nodes, that is about a third of
+   * the cost of serialising each row apart and joining the texts, shared between clients or not.
+   */
   private nodesJson(c: Client): string {
-    const keys: string[] = [];
+    const keys: [number, string][] = [];
     const asOfs: string[] = [];
     const asOfIndex = new Map<string, number>();
-    const rows: string[] = [];
-    const unpriced: string[] = [];
+    const rows: (number | null)[][] = [];
+    const unpriced: [number, ExposureMsg['unpriced']][] = [];
     // Nearly every node of a flush carries one of very few stamps, usually the one before it.
     let lastAsOf: string | undefined;
     let lastIndex = 0;
@@ -318,7 +320,7 @@ export class SseHub {
       if (id === undefined) {
         id = c.keyIds.size;
         c.keyIds.set(e.nodeKey, id);
-        keys.push(`[${id},${JSON.stringify(e.nodeKey)}]`);
+        keys.push([id, e.nodeKey]);
       }
       if (e.asOf !== lastAsOf) {
         lastAsOf = e.asOf;
@@ -328,18 +330,9 @@ export class SseHub {
           asOfIndex.set(e.asOf, lastIndex);
         } else lastIndex = known;
       }
-      const shared = this.sharedRow(e);
-      rows.push(`[${id},${lastIndex},${shared.values}]`);
-      if (shared.unpriced !== undefined) unpriced.push(`[${id},${shared.unpriced}]`);
-    }
-    return `{"keys":[${keys.join(',')}],"asOf":${JSON.stringify(asOfs)},"rows":[${rows.join(',')}],"unpriced":[${unpriced.join(',')}]}`;
-  }
-
-  private sharedRow(e: ExposureMsg): SharedRow {
-    let r = this.sharedRows.get(e);
-    if (r === undefined) {
-      // An array literal through JSON.stringify formats numbers faster than a template string does.
-      const text = JSON.stringify([
+      rows.push([
+        id,
+        lastIndex,
         e.pv,
         e.pnl,
         e.delta,
@@ -352,11 +345,9 @@ export class SseHub {
         e.positions,
         e.stale ? 1 : 0,
       ]);
-      const unpriced = Object.keys(e.unpriced).length > 0 ? JSON.stringify(e.unpriced) : undefined;
-      r = { values: text.slice(1, -1), unpriced };
-      this.sharedRows.set(e, r);
+      if (hasKeys(e.unpriced)) unpriced.push([id, e.unpriced]);
     }
-    return r;
+    return JSON.stringify({ keys, asOf: asOfs, rows, unpriced });
   }
 
   private json(o: object): string {
