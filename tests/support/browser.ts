@@ -1,7 +1,7 @@
 // A real browser for the integration suites: Debian's chromium driven by playwright-core, with a
 // fresh profile each time so no cache, storage or extension from another run colours a result.
 import { existsSync } from 'node:fs';
-import { mkdtemp, rm } from 'node:fs/promises';
+import { chmod, mkdtemp, rm, writeFile } from 'node:fs/promises';
 import { createServer, type Server } from 'node:http';
 import type { AddressInfo } from 'node:net';
 import { tmpdir } from 'node:os';
@@ -41,12 +41,28 @@ export interface BrowserSession {
 }
 
 export async function openBrowser(
-  opts: { colorScheme?: 'light' | 'dark'; viewport?: { width: number; height: number } } = {},
+  opts: {
+    colorScheme?: 'light' | 'dark';
+    viewport?: { width: number; height: number };
+    /**
+     * CPU list (taskset -c syntax, e.g. "1") to run the whole browser on: a benchmark that wants
+     * the page and its producer on separate cores. The browser is started under taskset, so every
+     * process it forks (renderers, GPU, utility) inherits the affinity.
+     */
+    cpus?: string;
+  } = {},
 ): Promise<BrowserSession> {
   const profile = await mkdtemp(join(tmpdir(), 'keelson-chromium-'));
+  let executablePath = CHROMIUM_PATH;
+  if (opts.cpus !== undefined) {
+    if (!/^[\d,-]+$/.test(opts.cpus)) throw new Error(`cpus: '${opts.cpus}' is not a taskset CPU list`);
+    executablePath = join(profile, 'chromium-pinned.sh');
+    await writeFile(executablePath, `#!/bin/sh\nexec taskset -c ${opts.cpus} ${CHROMIUM_PATH} "$@"\n`);
+    await chmod(executablePath, 0o755);
+  }
   // launchPersistentContext is playwright's way to give chromium its own --user-data-dir.
   const context = await chromium.launchPersistentContext(profile, {
-    executablePath: CHROMIUM_PATH,
+    executablePath,
     args: CHROMIUM_ARGS,
     headless: true,
     viewport: opts.viewport ?? { width: 1600, height: 1000 },

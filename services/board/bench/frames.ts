@@ -4,7 +4,14 @@
 // idle (the same page, no feed), fed in the page itself (the page's own cost), and fed from this
 // process through the hub (end to end), and prints them side by side.
 //
+// Through the hub it is measured twice. "sse" shares every core between chromium and this process
+// (the producer: the demo book standing in for the engine, the hub, the HTTP server), as on a
+// desktop that runs the engine too. "sse-pin" puts this process on one core and the whole browser
+// on another (taskset), as when the engine runs elsewhere: the page's cost without the producer
+// competing for its core. Pinning needs two CPUs and taskset; without them that row is left out.
+//
 //   npx tsx services/board/bench/frames.ts [--seconds 10] [--nodes-per-book 46]
+import { execFileSync } from 'node:child_process';
 import { cpus, loadavg } from 'node:os';
 import { SseHub } from '@keelson/http';
 import { DemoBook } from '../demo/scenario.ts';
@@ -64,9 +71,29 @@ function quantile(sorted: number[], q: number): number {
   return sorted[Math.min(sorted.length - 1, Math.floor(q * sorted.length))]!;
 }
 
-export async function runFrameBench(
-  opts: { seconds?: number; underlyingsPerBook?: number } = {},
-): Promise<{ nodes: number; idle: FrameStats; inPage: FrameStats; loaded: FrameStats }> {
+/** This process's CPU affinity (taskset -p), or undefined where it cannot be read or set. */
+function affinity(): string | undefined {
+  try {
+    return /list: (\S+)/.exec(
+      execFileSync('taskset', ['-c', '-p', String(process.pid)], { encoding: 'utf8' }),
+    )?.[1];
+  } catch {
+    return undefined;
+  }
+}
+
+function pinSelf(list: string): void {
+  // -a: every thread of this process (libuv's pool, V8's helpers), not only the main one.
+  execFileSync('taskset', ['-a', '-c', '-p', list, String(process.pid)], { stdio: 'ignore' });
+}
+
+export async function runFrameBench(opts: { seconds?: number; underlyingsPerBook?: number } = {}): Promise<{
+  nodes: number;
+  idle: FrameStats;
+  inPage: FrameStats;
+  loaded: FrameStats;
+  pinned: FrameStats | undefined;
+}> {
   const seconds = opts.seconds ?? 10;
   const names = Array.from({ length: 300 }, (_, i) => `U${String(i + 1).padStart(3, '0')}`);
   const book = new DemoBook({
@@ -79,13 +106,58 @@ export async function runFrameBench(
   const hub = new SseHub({ flushIntervalMs: 100 });
   hub.setSnapshot(() => ({ exposures: book.exposures(), alerts: [] }));
   const server = await startBoardServer(hub);
-  const browser = await openBrowser({ viewport: { width: 1600, height: 1000 } });
+  const nodes = book.exposures().length;
+  try {
+    const shared = await openBoard(server.url);
+    let idle: FrameStats;
+    let inPage: FrameStats;
+    let loaded: FrameStats;
+    try {
+      idle = await shared.record(false, hub, book, seconds);
+      inPage = await shared.record('page', hub, book, seconds);
+      loaded = await shared.record('sse', hub, book, seconds);
+    } finally {
+      await shared.close();
+    }
+    let pinned: FrameStats | undefined;
+    const before = affinity();
+    if (before !== undefined && cpus().length >= 2) {
+      pinSelf('0');
+      try {
+        const apart = await openBoard(server.url, '1');
+        try {
+          pinned = await apart.record('sse', hub, book, seconds);
+        } finally {
+          await apart.close();
+        }
+      } finally {
+        pinSelf(before);
+      }
+    }
+    return { nodes, idle, inPage, loaded, pinned };
+  } finally {
+    hub.close();
+    await server.close();
+  }
+}
+
+/** The page open in a fresh browser (on `cpuList` when given), everything expanded and scrolling. */
+async function openBoard(
+  url: string,
+  cpuList?: string,
+): Promise<{
+  record(feed: false | 'sse' | 'page', hub: SseHub, book: DemoBook, seconds: number): Promise<FrameStats>;
+  close(): Promise<void>;
+}> {
+  const browser = await openBrowser({
+    viewport: { width: 1600, height: 1000 },
+    ...(cpuList === undefined ? {} : { cpus: cpuList }),
+  });
   try {
     const page = await browser.context.newPage();
     await page.addInitScript(PROBE);
-    await page.goto(server.url);
+    await page.goto(url);
     await page.waitForSelector('body[data-ready="true"]');
-    const nodes = book.exposures().length;
     // Everything open: the grid's row list is the whole tree, and the user scrolls through it.
     await page.evaluate(() => {
       const w = window as unknown as { keelsonBoard: { tree: { expandTo(d: number): void } } };
@@ -144,7 +216,12 @@ export async function runFrameBench(
       };
     });
 
-    const record = async (feed: false | 'sse' | 'page'): Promise<FrameStats> => {
+    const record = async (
+      feed: false | 'sse' | 'page',
+      hub: SseHub,
+      book: DemoBook,
+      seconds: number,
+    ): Promise<FrameStats> => {
       const cdpBefore = await cdpMetrics();
       const snap = (): Promise<Counters> =>
         page.evaluate(() => {
@@ -210,14 +287,10 @@ export async function runFrameBench(
       };
     };
 
-    const idle = await record(false);
-    const inPage = await record('page');
-    const loaded = await record('sse');
-    return { nodes, idle, inPage, loaded };
-  } finally {
-    hub.close();
+    return { record, close: () => browser.close() };
+  } catch (err) {
     await browser.close();
-    await server.close();
+    throw err;
   }
 }
 
@@ -235,18 +308,24 @@ export async function printFrameBench(): Promise<void> {
   process.stdout.write(
     `${''.padEnd(8)}  frames  p50 ms  p95 ms  p99 ms  max ms  long  long ms  nodes/s  parse/s  apply/s render/s (ms)\n`,
   );
-  process.stdout.write(`${row('idle', r.idle)}\n${row('in-page', r.inPage)}\n${row('sse', r.loaded)}\n`);
+  const pinRow = (name: string, fmt: (s: FrameStats) => string): string =>
+    r.pinned ? `${fmt(r.pinned)}\n` : `${name.padEnd(8)}(not measured: needs 2 CPUs and taskset)\n`;
+  process.stdout.write(
+    `${row('idle', r.idle)}\n${row('in-page', r.inPage)}\n${row('sse', r.loaded)}\n` +
+      pinRow('sse-pin', (s) => row('sse-pin', s)),
+  );
   const cdpRow = (name: string, s: FrameStats): string =>
     `${name.padEnd(8)}${CDP_METRICS.map((k) => `${k.replace('Duration', '').replace('ThreadTime', 'CPU')} ${Math.round(s.chromium[k] ?? 0)}`).join('  ')}`;
   process.stdout.write(
-    `main thread, chromium's accounting (ms per s):\n${cdpRow('idle', r.idle)}\n${cdpRow('in-page', r.inPage)}\n${cdpRow('sse', r.loaded)}\n`,
+    `main thread, chromium's accounting (ms per s):\n${cdpRow('idle', r.idle)}\n${cdpRow('in-page', r.inPage)}\n${cdpRow('sse', r.loaded)}\n` +
+      pinRow('sse-pin', (s) => cdpRow('sse-pin', s)),
   );
   process.stdout.write(
-    `beside it, same machine (ms per s): producer process CPU idle ${Math.round(r.idle.producerCpu)}, in-page ${Math.round(r.inPage.producerCpu)}, sse ${Math.round(r.loaded.producerCpu)}; feed worker parse+pack (sse) ${Math.round(r.loaded.worker)}\n`,
+    `beside it, same machine (ms per s): producer process CPU idle ${Math.round(r.idle.producerCpu)}, in-page ${Math.round(r.inPage.producerCpu)}, sse ${Math.round(r.loaded.producerCpu)}, sse-pin ${r.pinned ? Math.round(r.pinned.producerCpu) : '-'}; feed worker parse+pack sse ${Math.round(r.loaded.worker)}, sse-pin ${r.pinned ? Math.round(r.pinned.worker) : '-'}\n`,
   );
   const budget = 1000 / 60;
   process.stdout.write(
-    `p95 / 60 Hz frame budget (16.7 ms): idle ${(r.idle.p95 / budget).toFixed(2)}x, in-page feed ${(r.inPage.p95 / budget).toFixed(2)}x, through the hub ${(r.loaded.p95 / budget).toFixed(2)}x\n` +
+    `p95 / 60 Hz frame budget (16.7 ms): idle ${(r.idle.p95 / budget).toFixed(2)}x, in-page feed ${(r.inPage.p95 / budget).toFixed(2)}x, through the hub ${(r.loaded.p95 / budget).toFixed(2)}x shared, ${r.pinned ? `${(r.pinned.p95 / budget).toFixed(2)}x` : '-'} pinned apart\n` +
       `load average while measuring: ${loadavg()
         .map((l) => l.toFixed(2))
         .join(' ')} on ${cpus().length} CPUs\n`,

@@ -1,10 +1,26 @@
 // An invented book for the page's browser test, screenshot and frame-time benchmark: desks, books
 // and underlyings of our own naming, with leaf exposures that move a little on every tick and every
-// parent node the exact sum of its leaves (as the engine would publish them).
+// parent node the sum of its leaves. Parents are kept the way the engine keeps them: a leaf's
+// change is added to each node that holds it, and a publication builds one plain exposure object
+// per node from those running sums, so a benchmark's producer costs what the engine's hand-off to
+// the hub costs, no more.
 import { nodeKey, type ExposureMsg } from '@keelson/shared-types';
 
 type Sums = Pick<ExposureMsg, 'pv' | 'pnl' | 'cashDelta' | 'cashGamma' | 'vega' | 'theta' | 'rho'>;
-const SUMMED = ['pv', 'pnl', 'cashDelta', 'cashGamma', 'vega', 'theta', 'rho'] as const;
+
+/** A node's running sums over its leaves. */
+type Totals = Sums & { delta: number; gamma: number };
+
+interface NodeSums {
+  key: string;
+  node: ExposureMsg['node'];
+  /** delta and gamma are published only where the node fixes one underlying. */
+  fixed: boolean;
+  sums: Totals;
+  positions: number;
+  /** Leaves under the node whose underlying is stale. */
+  staleLeaves: number;
+}
 
 interface Leaf {
   desk: string;
@@ -15,6 +31,8 @@ interface Leaf {
   gamma: number;
   sums: Sums;
   positions: number;
+  /** Every node this leaf is summed into: firm, desk, desk/book, desk/book/underlying, underlying. */
+  nodes: NodeSums[];
 }
 
 /** A small deterministic generator (mulberry32), so a seed always draws the same book. */
@@ -74,6 +92,7 @@ export class DemoBook {
             delta,
             gamma,
             positions: 5 + Math.floor(this.random() * 60),
+            nodes: [],
             sums: {
               pv,
               pnl: pv * (this.random() * 0.08 - 0.03),
@@ -87,6 +106,7 @@ export class DemoBook {
         }
       }
     }
+    this.buildNodes();
   }
 
   get size(): number {
@@ -95,8 +115,11 @@ export class DemoBook {
 
   /** Marks an underlying's spot stale (or fresh again) in every node that holds it. */
   setStale(underlying: string, stale: boolean): void {
+    if (stale === this.stale.has(underlying)) return;
     if (stale) this.stale.add(underlying);
     else this.stale.delete(underlying);
+    for (const leaf of this.leaves)
+      if (leaf.underlying === underlying) for (const n of leaf.nodes) n.staleLeaves += stale ? 1 : -1;
   }
 
   /** Moves every spot a little (a fraction of the leaves when `share` < 1) and advances the clock. */
@@ -104,40 +127,109 @@ export class DemoBook {
     this.nowMs += dtMs;
     for (const leaf of this.leaves) {
       if (share < 1 && this.random() > share) continue;
+      const s = leaf.sums;
       const move = leaf.spot * (this.random() - 0.5) * 0.004;
       const newSpot = leaf.spot + move;
       const dPv = leaf.delta * move + 0.5 * leaf.gamma * move * move;
-      leaf.delta += leaf.gamma * move;
+      const dDelta = leaf.gamma * move;
+      const cashDelta = (leaf.delta + dDelta) * newSpot;
+      const cashGamma = (leaf.gamma * newSpot * newSpot) / 100;
+      const vega = s.vega * (1 + (this.random() - 0.5) * 0.002);
+      const dCashDelta = cashDelta - s.cashDelta;
+      const dCashGamma = cashGamma - s.cashGamma;
+      const dVega = vega - s.vega;
+      leaf.delta += dDelta;
       leaf.spot = newSpot;
-      leaf.sums.pv += dPv;
-      leaf.sums.pnl += dPv;
-      leaf.sums.cashDelta = leaf.delta * newSpot;
-      leaf.sums.cashGamma = (leaf.gamma * newSpot * newSpot) / 100;
-      leaf.sums.vega *= 1 + (this.random() - 0.5) * 0.002;
+      s.pv += dPv;
+      s.pnl += dPv;
+      s.cashDelta = cashDelta;
+      s.cashGamma = cashGamma;
+      s.vega = vega;
+      for (const n of leaf.nodes) {
+        const a = n.sums;
+        a.pv += dPv;
+        a.pnl += dPv;
+        a.delta += dDelta;
+        a.cashDelta += dCashDelta;
+        a.cashGamma += dCashGamma;
+        a.vega += dVega;
+      }
     }
   }
 
   /** Shifts one leaf's vega, to push a limit across its levels in a test. */
   bumpVega(desk: string, amount: number): void {
     const leaf = this.leaves.find((l) => l.desk === desk);
-    if (leaf) leaf.sums.vega += amount;
+    if (!leaf) return;
+    leaf.sums.vega += amount;
+    for (const n of leaf.nodes) n.sums.vega += amount;
   }
 
   asOf(): string {
     return new Date(this.nowMs).toISOString();
   }
 
-  /** Node -> the leaves it sums; built once, the book's shape never changes. */
-  private groups: { key: string; node: ExposureMsg['node']; leaves: Leaf[] }[] | undefined;
+  /** Every node the engine would keep for this book: firm, desk, desk/book, desk/book/underlying, underlying. */
+  exposures(): ExposureMsg[] {
+    const asOf = this.asOf();
+    const out: ExposureMsg[] = new Array(this.nodes.length);
+    for (let i = 0; i < this.nodes.length; i++) {
+      const n = this.nodes[i]!;
+      const a = n.sums;
+      out[i] = {
+        type: 'exposure',
+        nodeKey: n.key,
+        node: n.node,
+        currency: 'USD',
+        asOf,
+        pv: a.pv,
+        pnl: a.pnl,
+        delta: n.fixed ? a.delta : null,
+        cashDelta: a.cashDelta,
+        gamma: n.fixed ? a.gamma : null,
+        cashGamma: a.cashGamma,
+        vega: a.vega,
+        theta: a.theta,
+        rho: a.rho,
+        positions: n.positions,
+        unpriced: {},
+        stale: n.staleLeaves > 0,
+      };
+    }
+    return out;
+  }
 
-  private shape(): { key: string; node: ExposureMsg['node']; leaves: Leaf[] }[] {
-    if (this.groups) return this.groups;
-    const byKey = new Map<string, { key: string; node: ExposureMsg['node']; leaves: Leaf[] }>();
+  /** Node keys in order, each node knowing its leaves' sums; built once, the book's shape never changes. */
+  private readonly nodes: NodeSums[] = [];
+
+  private buildNodes(): void {
+    const byKey = new Map<string, NodeSums>();
     const add = (node: ExposureMsg['node'], leaf: Leaf): void => {
       const key = nodeKey(node);
-      let g = byKey.get(key);
-      if (!g) byKey.set(key, (g = { key, node, leaves: [] }));
-      g.leaves.push(leaf);
+      let n = byKey.get(key);
+      if (!n) {
+        n = {
+          key,
+          node,
+          fixed: node.underlying !== undefined,
+          sums: { pv: 0, pnl: 0, delta: 0, cashDelta: 0, gamma: 0, cashGamma: 0, vega: 0, theta: 0, rho: 0 },
+          positions: 0,
+          staleLeaves: 0,
+        };
+        byKey.set(key, n);
+      }
+      const a = n.sums;
+      a.pv += leaf.sums.pv;
+      a.pnl += leaf.sums.pnl;
+      a.delta += leaf.delta;
+      a.cashDelta += leaf.sums.cashDelta;
+      a.gamma += leaf.gamma;
+      a.cashGamma += leaf.sums.cashGamma;
+      a.vega += leaf.sums.vega;
+      a.theta += leaf.sums.theta;
+      a.rho += leaf.sums.rho;
+      n.positions += leaf.positions;
+      leaf.nodes.push(n);
     };
     for (const leaf of this.leaves) {
       add({}, leaf);
@@ -146,42 +238,6 @@ export class DemoBook {
       add({ desk: leaf.desk, book: leaf.book, underlying: leaf.underlying }, leaf);
       add({ underlying: leaf.underlying }, leaf);
     }
-    this.groups = [...byKey.values()].sort((a, b) => (a.key < b.key ? -1 : a.key > b.key ? 1 : 0));
-    return this.groups;
-  }
-
-  /** Every node the engine would keep for this book: firm, desk, desk/book, desk/book/underlying, underlying. */
-  exposures(): ExposureMsg[] {
-    const asOf = this.asOf();
-    const out: ExposureMsg[] = [];
-    for (const { key, node, leaves } of this.shape()) {
-      const sums = { pv: 0, pnl: 0, cashDelta: 0, cashGamma: 0, vega: 0, theta: 0, rho: 0 };
-      let delta = 0;
-      let gamma = 0;
-      let positions = 0;
-      let stale = false;
-      for (const l of leaves) {
-        for (const m of SUMMED) sums[m] += l.sums[m];
-        delta += l.delta;
-        gamma += l.gamma;
-        positions += l.positions;
-        stale ||= this.stale.has(l.underlying);
-      }
-      const fixed = node.underlying !== undefined;
-      out.push({
-        type: 'exposure',
-        nodeKey: key,
-        node,
-        currency: 'USD',
-        asOf,
-        ...sums,
-        delta: fixed ? delta : null,
-        gamma: fixed ? gamma : null,
-        positions,
-        unpriced: {},
-        stale,
-      });
-    }
-    return out;
+    this.nodes.push(...[...byKey.values()].sort((a, b) => (a.key < b.key ? -1 : a.key > b.key ? 1 : 0)));
   }
 }
