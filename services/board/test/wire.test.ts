@@ -5,7 +5,7 @@ import { EventEmitter } from 'node:events';
 import type { IncomingMessage, ServerResponse } from 'node:http';
 import { describe, expect, it } from 'vitest';
 import type { ExposureMsg } from '@keelson/shared-types';
-import { NODE_ROW_FIELDS, SseHub } from '@keelson/http';
+import { NODE_METRICS, SseHub } from '@keelson/http';
 import { DemoBook } from '../demo/scenario.ts';
 
 interface Dict {
@@ -13,7 +13,7 @@ interface Dict {
   reset(): void;
 }
 const wire = (await import('../static/js/wire.js' as string)) as {
-  ROW_FIELDS: string[];
+  ROW_METRICS: string[];
   NodeDictionary: new () => Dict;
   decodeNodes(payload: unknown, dict: Dict): { list: Record<string, unknown>[]; problems: string[] };
 };
@@ -74,7 +74,7 @@ function connect(hub: SseHub): Capture {
 
 describe('compact nodes event, hub to page', () => {
   it('names the same fields in the same order on both sides', () => {
-    expect(wire.ROW_FIELDS).toEqual([...NODE_ROW_FIELDS]);
+    expect(wire.ROW_METRICS).toEqual([...NODE_METRICS]);
   });
 
   it('decodes to exactly the exposures published, tick after tick, and again after a reconnect', () => {
@@ -126,26 +126,34 @@ describe('compact nodes event, hub to page', () => {
 
   it('leaves out only the rows it cannot read, naming the field', () => {
     const dict = new wire.NodeDictionary();
+    // Four rows of nine doubles: 1..36, little-endian (node's Buffer, RFC 4648 base64).
+    const doubles = Buffer.alloc(4 * 9 * 8);
+    for (let i = 0; i < 36; i++) doubles.writeDoubleLE(i + 1, i * 8);
     const { list, problems } = wire.decodeNodes(
       {
         keys: [[0, 'firm']],
         asOf: ['2026-03-02T14:30:00.000Z'],
         rows: [
-          [0, 0, 1, 2, null, 3, null, 4, 5, 6, 7, 8, 0],
-          [9, 0, 1, 2, null, 3, null, 4, 5, 6, 7, 8, 0],
-          [0, 3, 1, 2, null, 3, null, 4, 5, 6, 7, 8, 0],
+          [0, 0, 8, 0],
+          [9, 0, 8, 0],
+          [0, 3, 8, 0],
           [0, 0, 1],
         ],
+        metrics: doubles.toString('base64'),
         unpriced: [],
       },
       dict,
     );
-    expect(list.map((e) => [e.nodeKey, e.pv, e.rho, e.positions])).toEqual([['firm', 1, 7, 8]]);
+    expect(list.map((e) => [e.nodeKey, e.pv, e.rho, e.positions])).toEqual([['firm', 1, 9, 8]]);
     expect(problems).toEqual([
       'nodes.rows[1][0]: id 9 was never named on this connection',
       "nodes.rows[2][1]: asOf index 3 outside the event's table of 1",
-      'nodes.rows[3]: expected an array of 13 values',
+      'nodes.rows[3]: expected [id, asOfIndex, positions, stale]',
     ]);
     expect(wire.decodeNodes({ rows: 'x', asOf: [] }, dict).problems).toEqual(['nodes.rows: not an array']);
+    expect(
+      wire.decodeNodes({ rows: [[0, 0, 1, 0]], asOf: ['x'], metrics: doubles.toString('base64') }, dict)
+        .problems,
+    ).toEqual(['nodes.metrics: 288 bytes for 1 rows, expected 72']);
   });
 });

@@ -4,7 +4,7 @@ import { connect as tcpConnect } from 'node:net';
 import type { AddressInfo } from 'node:net';
 import { afterEach, describe, expect, it, vi } from 'vitest';
 import type { AlertMsg, ExposureMsg, StaleFeedMsg } from '@keelson/shared-types';
-import { NODE_ROW_FIELDS, SseHub, type LimitView } from './sse.ts';
+import { NODE_METRICS, SseHub, type LimitView } from './sse.ts';
 
 // Parses a text/event-stream body by the rules of the WHATWG HTML Living Standard, section
 // "Server-sent events / Interpreting an event stream": lines split on LF, a blank line dispatches,
@@ -47,8 +47,9 @@ function parseStream(body: string): { events: ParsedEvent[]; comments: string[];
 
 /**
  * Reads `nodes` events back into exposures by the format written in sse.ts's file comment, with a
- * dictionary per connection as a browser keeps it. Only what the compact event carries is
- * compared: currency and dimensions stay on the state event.
+ * dictionary per connection as a browser keeps it. The metrics block is read with node's own
+ * base64 decoder (RFC 4648) and Buffer.readDoubleLE, not the page's code. Only what the compact
+ * event carries is compared: currency and dimensions stay on the state event.
  */
 type Decoded = Pick<ExposureMsg, 'nodeKey' | 'asOf' | 'unpriced'> & Record<string, unknown>;
 class NodesReader {
@@ -57,30 +58,43 @@ class NodesReader {
     const p = JSON.parse(data) as {
       keys: [number, string][];
       asOf: string[];
-      rows: unknown[][];
+      rows: [number, number, number, number][];
+      metrics: string;
       unpriced: [number, Record<string, number>][];
     };
     for (const [id, key] of p.keys) {
       expect(this.keys.has(id)).toBe(false); // each key is named once per connection
       this.keys.set(id, key);
     }
+    const block = Buffer.from(p.metrics, 'base64');
+    expect(block.length).toBe(p.rows.length * NODE_METRICS.length * 8);
     const unpriced = new Map(p.unpriced);
-    return p.rows.map((row) => {
-      expect(row).toHaveLength(2 + NODE_ROW_FIELDS.length);
+    return p.rows.map((row, r) => {
+      expect(row).toHaveLength(4);
       const out: Decoded = {
-        nodeKey: this.keys.get(row[0] as number)!,
-        asOf: p.asOf[row[1] as number]!,
-        unpriced: unpriced.get(row[0] as number) ?? {},
+        nodeKey: this.keys.get(row[0])!,
+        asOf: p.asOf[row[1]]!,
+        unpriced: unpriced.get(row[0]) ?? {},
+        positions: row[2],
+        stale: row[3] === 1,
       };
-      NODE_ROW_FIELDS.forEach((f, i) => (out[f] = row[2 + i]));
-      out.stale = out.stale === 1;
+      NODE_METRICS.forEach((m, i) => {
+        const v = block.readDoubleLE((r * NODE_METRICS.length + i) * 8);
+        out[m] = Number.isNaN(v) ? null : v;
+      });
       return out;
     });
   }
 }
 const compactOf = (e: ExposureMsg): Decoded => {
-  const out: Decoded = { nodeKey: e.nodeKey, asOf: e.asOf, unpriced: e.unpriced };
-  for (const f of NODE_ROW_FIELDS) out[f] = e[f];
+  const out: Decoded = {
+    nodeKey: e.nodeKey,
+    asOf: e.asOf,
+    unpriced: e.unpriced,
+    positions: e.positions,
+    stale: e.stale,
+  };
+  for (const m of NODE_METRICS) out[m] = e[m];
   return out;
 };
 
@@ -344,7 +358,12 @@ describe('SseHub', () => {
       [1, 'firm'],
     ]);
     expect(payload.asOf).toEqual(['2026-03-02T14:30:00.000Z', '2026-03-02T14:30:00.100Z']);
-    expect(payload.rows[1]).toEqual([1, 1, -42.5, 0, null, 0, null, 0, 0, 0, 0, 1, 0]);
+    expect(payload.rows).toEqual([
+      [0, 0, 17, 1],
+      [1, 1, 1, 0],
+    ]);
+    // The firm's pv, -42.5, is the tenth double: its IEEE 754 bits, little-endian (0xC045400000000000).
+    expect(Buffer.from(payload.metrics, 'base64').subarray(72, 80).toString('hex')).toBe('00000000004045c0');
     expect(reader.read(first.data)).toEqual([compactOf(leaf), compactOf(firm)]);
 
     // Next flush: ids only, no keys; a node whose unpriced positions priced again has no entry.
@@ -476,8 +495,16 @@ describe('SseHub', () => {
       // 50 nodes, not 10 000 messages.
       expect(hub.stats().coalesced - before).toBe(10_000 - 50);
       sock.resume();
-      // The last value of the last node: its row is [id, asOf index, pv, ...].
-      await expect.poll(() => received.includes(`,0,${i},`), { timeout: 10_000 }).toBe(true);
+      // The last value of the last node arrives. Each frame is one write, so one HTTP chunk: its
+      // data line stands whole in the raw bytes, and the events read in order name every key.
+      const latest = (): number[] => {
+        const reader = new NodesReader();
+        const pvs: number[] = [];
+        for (const m of received.matchAll(/event: nodes\ndata: (.*)\n\n/g))
+          for (const n of reader.read(m[1]!)) pvs.push(n.pv as number);
+        return pvs;
+      };
+      await expect.poll(() => latest().includes(i), { timeout: 10_000 }).toBe(true);
     } finally {
       sock.destroy();
       hub.close();

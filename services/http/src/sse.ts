@@ -12,14 +12,21 @@
 // The `nodes` event is this stream's own compact form, not the bus contract's exposure message:
 // it is the heavy event (every node, ten times a second), and full exposure JSON made the hub's
 // serialising and the browser's parsing the largest costs of the live view. It reads
-//   {"keys":[[id,"nodeKey"],...],"asOf":["ISO time",...],"rows":[row,...],"unpriced":[[id,{reason:n}],...]}
-//   row = [id, asOfIndex, pv, pnl, delta, cashDelta, gamma, cashGamma, vega, theta, rho, positions, stale]
+//   {"keys":[[id,"nodeKey"],...],"asOf":["ISO time",...],"rows":[[id,asOfIndex,positions,stale],...],
+//    "metrics":"<base64>","unpriced":[[id,{reason:n}],...]}
 // - `id` is a small integer this connection gives a node key. `keys` carries each key once, in the
 //   first nodes event that names it; later events name the node by id only. Ids are valid for one
 //   connection: a reconnecting browser gets a fresh `state` event and a fresh dictionary from 0.
-// - `asOfIndex` points into the event's `asOf` table (a flush holds a handful of distinct stamps).
-// - The numbers are the exposure's own, unrounded (JSON's shortest round-trip form); `delta` and
-//   `gamma` are null where the node fixes no single underlying; `stale` is 1 or 0.
+// - `asOfIndex` points into the event's `asOf` table (a flush holds a handful of distinct stamps);
+//   `stale` is 1 or 0.
+// - `metrics` is base64 (RFC 4648 section 4) of IEEE 754 doubles, little-endian, nine per row in
+//   row order: pv, pnl, delta, cashDelta, gamma, cashGamma, vega, theta, rho (NODE_METRICS). The
+//   bits are the exposure's own, so the page reads exactly what was published; NaN stands for the
+//   contract's null (delta and gamma where the node fixes no single underlying; every other metric
+//   is finite by contract). Doubles in binary rather than decimal text: formatting and parsing
+//   45 000 shortest round-trip decimals a flush was most of the hub's and the feed worker's time
+//   (measured: 8.6 ms to write and 6.4 ms to read 5 000 rows as JSON numbers, 1.0 and 1.2 ms as
+//   base64 doubles), and the event is 40% smaller.
 // - `unpriced` lists only nodes with unpriced positions; a row without an entry has none.
 // Currency and dimensions are left out: the page shows neither per row, and the dimensions follow
 // from the key (contract node keys). Full exposures remain on the state event and on /exposures.
@@ -67,8 +74,8 @@ export interface SseHubOptions {
   maxBacklogBytes?: number;
 }
 
-/** The fields of a `nodes` row after its id and asOf index, in wire order. */
-export const NODE_ROW_FIELDS = [
+/** The metrics of a `nodes` event's binary block, in order, nine doubles per row. */
+export const NODE_METRICS = [
   'pv',
   'pnl',
   'delta',
@@ -78,9 +85,8 @@ export const NODE_ROW_FIELDS = [
   'vega',
   'theta',
   'rho',
-  'positions',
-  'stale',
 ] as const;
+const METRIC_COUNT = NODE_METRICS.length;
 
 export interface SseHubStats {
   clients: number;
@@ -301,20 +307,19 @@ export class SseHub {
     }
   }
 
-  /**
-   * The compact nodes event for one client (format in the file comment); O(pending nodes). The rows
-   * go through one JSON.stringify as one array: measured at 5 000 nodes, that is about a third of
-   * the cost of serialising each row apart and joining the texts, shared between clients or not.
-   */
+  /** The compact nodes event for one client (format in the file comment); O(pending nodes). */
   private nodesJson(c: Client): string {
+    const n = c.pendingNodes.size;
     const keys: [number, string][] = [];
     const asOfs: string[] = [];
     const asOfIndex = new Map<string, number>();
-    const rows: (number | null)[][] = [];
+    const rows: number[][] = new Array(n);
     const unpriced: [number, ExposureMsg['unpriced']][] = [];
+    const block = new DataView(new ArrayBuffer(n * METRIC_COUNT * 8));
     // Nearly every node of a flush carries one of very few stamps, usually the one before it.
     let lastAsOf: string | undefined;
     let lastIndex = 0;
+    let r = 0;
     for (const e of c.pendingNodes.values()) {
       let id = c.keyIds.get(e.nodeKey);
       if (id === undefined) {
@@ -330,24 +335,22 @@ export class SseHub {
           asOfIndex.set(e.asOf, lastIndex);
         } else lastIndex = known;
       }
-      rows.push([
-        id,
-        lastIndex,
-        e.pv,
-        e.pnl,
-        e.delta,
-        e.cashDelta,
-        e.gamma,
-        e.cashGamma,
-        e.vega,
-        e.theta,
-        e.rho,
-        e.positions,
-        e.stale ? 1 : 0,
-      ]);
+      rows[r] = [id, lastIndex, e.positions, e.stale ? 1 : 0];
+      const o = r * METRIC_COUNT * 8;
+      block.setFloat64(o, e.pv, true);
+      block.setFloat64(o + 8, e.pnl, true);
+      block.setFloat64(o + 16, e.delta ?? NaN, true);
+      block.setFloat64(o + 24, e.cashDelta, true);
+      block.setFloat64(o + 32, e.gamma ?? NaN, true);
+      block.setFloat64(o + 40, e.cashGamma, true);
+      block.setFloat64(o + 48, e.vega, true);
+      block.setFloat64(o + 56, e.theta, true);
+      block.setFloat64(o + 64, e.rho, true);
       if (hasKeys(e.unpriced)) unpriced.push([id, e.unpriced]);
+      r++;
     }
-    return JSON.stringify({ keys, asOf: asOfs, rows, unpriced });
+    const metrics = Buffer.from(block.buffer).toString('base64');
+    return JSON.stringify({ keys, asOf: asOfs, rows, metrics, unpriced });
   }
 
   private json(o: object): string {

@@ -3,9 +3,9 @@
 // times a second, in the hub's compact form: wire.js): it is parsed here and handed over packed,
 // numbers in one transferable Float64Array, so the page's main thread spends its time drawing
 // rather than parsing JSON. The rare events (state, signal, bounds) are passed on as parsed objects.
-import { NodeDictionary, ROW_METRICS } from './wire.js';
+import { NodeDictionary, ROW_METRICS, metricsOf } from './wire.js';
 
-const M = ROW_METRICS;
+const M = ROW_METRICS.length;
 
 // Node keys cross to the page as small integers of this worker's own numbering: each key's text
 // crosses once, the first time it is seen, and the page keeps one string per key. A structured
@@ -32,11 +32,18 @@ function pageId(wireId, newKeys) {
   return id;
 }
 
-/** Packs one parsed nodes payload; `problems` collects rows it had to leave out. */
+/** Packs one parsed nodes payload; `problems` collects what it had to leave out. */
 function pack(payload, problems) {
   const shape = wire.learn(payload);
   if (shape) {
     problems.push(shape);
+    return null;
+  }
+  let block;
+  try {
+    block = metricsOf(payload);
+  } catch (err) {
+    problems.push(err.message);
     return null;
   }
   const rows = payload.rows;
@@ -45,30 +52,28 @@ function pack(payload, problems) {
   const ids = new Int32Array(n);
   const newKeys = [];
   const asOf = new Int32Array(n);
-  const vals = new Float64Array(n * M);
   const positions = new Int32Array(n);
   const stale = new Uint8Array(n);
   const unpricedByWire = new Map();
   for (const u of payload.unpriced ?? []) if (Array.isArray(u)) unpricedByWire.set(u[0], u[1]);
   const unpriced = [];
+  // The block already is the page's layout (nine doubles a row, NaN for null): it is handed over
+  // as it is unless a row has to be left out.
+  let vals = block;
   let k = 0;
   for (let r = 0; r < n; r++) {
     const row = rows[r];
     const problem = wire.rowProblem(row, r, asOfTable.length);
     if (problem) {
       problems.push(problem);
+      if (vals === block) vals = block.slice();
       continue;
     }
+    if (k !== r) vals.copyWithin(k * M, r * M, (r + 1) * M);
     ids[k] = pageId(row[0], newKeys);
     asOf[k] = row[1];
-    const o = k * M;
-    for (let m = 0; m < M; m++) {
-      const v = row[2 + m];
-      // null (delta and gamma where no single underlying) travels as NaN and comes back as null.
-      vals[o + m] = v === null ? NaN : v;
-    }
-    positions[k] = row[11];
-    stale[k] = row[12] === 1 ? 1 : 0;
+    positions[k] = row[2];
+    stale[k] = row[3] === 1 ? 1 : 0;
     if (unpricedByWire.size > 0) {
       const u = unpricedByWire.get(row[0]);
       if (u !== undefined) unpriced.push([k, u]);

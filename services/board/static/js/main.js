@@ -179,8 +179,8 @@ const NO_UNPRICED = Object.freeze({});
 export function unpack(p, keyTable, intern = (k) => k) {
   for (const k of p.newKeys) keyTable.push(intern(k));
   const n = p.ids.length;
-  // The worker packs the row's metrics (wire.js ROW_FIELDS, pv .. rho) in wire order.
-  const M = ROW_METRICS;
+  // The worker hands over the event's metrics block: nine doubles a row (wire.js ROW_METRICS).
+  const M = ROW_METRICS.length;
   const out = new Array(n);
   const unpriced = new Map(p.unpriced);
   for (let i = 0; i < n; i++) {
