@@ -71,6 +71,71 @@ function quantile(sorted: number[], q: number): number {
   return sorted[Math.min(sorted.length - 1, Math.floor(q * sorted.length))]!;
 }
 
+/** The producer: the demo book ticks and every node goes to the hub, as the engine hands them over. */
+function startFeed(hub: SseHub, book: DemoBook): () => void {
+  const timer = setInterval(() => {
+    book.tick(100);
+    for (const e of book.exposures()) hub.publishExposure(e);
+  }, 100);
+  return () => clearInterval(timer);
+}
+
+/** Where chromium's CPU goes, from a trace: per thread, and on the page's main thread per stage. */
+export interface ThreadBreakdown {
+  /** [process/thread, CPU ms per s] */
+  threads: [string, number][];
+  /** [trace event, CPU ms per s] on the renderer's main thread */
+  main: [string, number][];
+}
+// Rendering stages and script entry points of the renderer's main thread (chromium trace event names).
+const MAIN_STAGES = [
+  'FunctionCall',
+  'HandlePostMessage',
+  'FireAnimationFrame',
+  'UpdateLayoutTree',
+  'Layout',
+  'PrePaint',
+  'Paint',
+  'Layerize',
+  'Commit',
+  'MajorGC',
+  'MinorGC',
+];
+
+interface TraceEvent {
+  ph: string;
+  name: string;
+  pid: number;
+  tid: number;
+  dur?: number;
+  tdur?: number;
+  args?: { name?: string };
+}
+
+function breakdown(events: TraceEvent[], seconds: number): ThreadBreakdown {
+  const threadName = new Map<string, string>();
+  const processName = new Map<number, string>();
+  for (const e of events) {
+    if (e.ph !== 'M') continue;
+    if (e.name === 'thread_name') threadName.set(`${e.pid}:${e.tid}`, e.args?.name ?? '');
+    if (e.name === 'process_name') processName.set(e.pid, e.args?.name ?? '');
+  }
+  const threads = new Map<string, number>();
+  const main = new Map<string, number>();
+  for (const e of events) {
+    if (e.ph !== 'X') continue;
+    const thread = `${processName.get(e.pid) ?? e.pid}/${threadName.get(`${e.pid}:${e.tid}`) ?? e.tid}`;
+    // Thread CPU time (tdur) of each task the scheduler ran; wall time would count preemption.
+    const cpu = (e.tdur ?? e.dur ?? 0) / 1000 / seconds;
+    if (e.name === 'ThreadControllerImpl::RunTask') threads.set(thread, (threads.get(thread) ?? 0) + cpu);
+    if (thread.endsWith('/CrRendererMain') && MAIN_STAGES.includes(e.name))
+      main.set(e.name, (main.get(e.name) ?? 0) + cpu);
+  }
+  const top = (m: Map<string, number>): [string, number][] =>
+    [...m].filter(([, v]) => v >= 1).sort((a, b) => b[1] - a[1]);
+  return { threads: top(threads).slice(0, 8), main: top(main) };
+}
+
 /** This process's CPU affinity (taskset -p), or undefined where it cannot be read or set. */
 function affinity(): string | undefined {
   try {
@@ -87,12 +152,15 @@ function pinSelf(list: string): void {
   execFileSync('taskset', ['-a', '-c', '-p', list, String(process.pid)], { stdio: 'ignore' });
 }
 
-export async function runFrameBench(opts: { seconds?: number; underlyingsPerBook?: number } = {}): Promise<{
+export async function runFrameBench(
+  opts: { seconds?: number; underlyingsPerBook?: number; traceSeconds?: number } = {},
+): Promise<{
   nodes: number;
   idle: FrameStats;
   inPage: FrameStats;
   loaded: FrameStats;
   pinned: FrameStats | undefined;
+  threads: ThreadBreakdown | undefined;
 }> {
   const seconds = opts.seconds ?? 10;
   const names = Array.from({ length: 300 }, (_, i) => `U${String(i + 1).padStart(3, '0')}`);
@@ -112,10 +180,12 @@ export async function runFrameBench(opts: { seconds?: number; underlyingsPerBook
     let idle: FrameStats;
     let inPage: FrameStats;
     let loaded: FrameStats;
+    let threads: ThreadBreakdown | undefined;
     try {
       idle = await shared.record(false, hub, book, seconds);
       inPage = await shared.record('page', hub, book, seconds);
       loaded = await shared.record('sse', hub, book, seconds);
+      if (opts.traceSeconds) threads = await shared.trace(hub, book, opts.traceSeconds);
     } finally {
       await shared.close();
     }
@@ -134,7 +204,7 @@ export async function runFrameBench(opts: { seconds?: number; underlyingsPerBook
         pinSelf(before);
       }
     }
-    return { nodes, idle, inPage, loaded, pinned };
+    return { nodes, idle, inPage, loaded, pinned, threads };
   } finally {
     hub.close();
     await server.close();
@@ -147,6 +217,7 @@ async function openBoard(
   cpuList?: string,
 ): Promise<{
   record(feed: false | 'sse' | 'page', hub: SseHub, book: DemoBook, seconds: number): Promise<FrameStats>;
+  trace(hub: SseHub, book: DemoBook, seconds: number): Promise<ThreadBreakdown>;
   close(): Promise<void>;
 }> {
   const browser = await openBrowser({
@@ -242,19 +313,14 @@ async function openBoard(
         w.__long = [];
         w.__recording = true;
       });
-      let timer: NodeJS.Timeout | undefined;
+      let stopFeed: (() => void) | undefined;
       if (feed === 'page')
         await page.evaluate(() =>
           (window as unknown as { __pageFeed: { start(): void } }).__pageFeed.start(),
         );
-      if (feed === 'sse') {
-        timer = setInterval(() => {
-          book.tick(100);
-          for (const e of book.exposures()) hub.publishExposure(e);
-        }, 100);
-      }
+      if (feed === 'sse') stopFeed = startFeed(hub, book);
       await new Promise((r) => setTimeout(r, seconds * 1000));
-      if (timer) clearInterval(timer);
+      stopFeed?.();
       if (feed === 'page')
         await page.evaluate(() => (window as unknown as { __pageFeed: { stop(): void } }).__pageFeed.stop());
       const { frames, long } = await page.evaluate(() => {
@@ -287,7 +353,30 @@ async function openBoard(
       };
     };
 
-    return { record, close: () => browser.close() };
+    /** A separate traced run through the hub: tracing costs CPU itself, so no frame times from it. */
+    const trace = async (hub: SseHub, book: DemoBook, seconds: number): Promise<ThreadBreakdown> => {
+      const events: TraceEvent[] = [];
+      cdp.on('Tracing.dataCollected', (d) => {
+        events.push(...(d.value as unknown as TraceEvent[]));
+      });
+      const complete = new Promise((r) => cdp.once('Tracing.tracingComplete', r));
+      const stopFeed = startFeed(hub, book);
+      try {
+        await new Promise((r) => setTimeout(r, 1000));
+        await cdp.send('Tracing.start', {
+          categories: 'devtools.timeline,disabled-by-default-devtools.timeline,toplevel,v8',
+          transferMode: 'ReportEvents',
+        });
+        await new Promise((r) => setTimeout(r, seconds * 1000));
+        await cdp.send('Tracing.end');
+        await complete;
+      } finally {
+        stopFeed();
+      }
+      return breakdown(events, seconds);
+    };
+
+    return { record, trace, close: () => browser.close() };
   } catch (err) {
     await browser.close();
     throw err;
@@ -298,7 +387,10 @@ async function openBoard(
 export async function printFrameBench(): Promise<void> {
   if (!chromiumAvailability().available) return;
   const seconds = arg('seconds', 10);
-  const r = await runFrameBench({ seconds, underlyingsPerBook: arg('nodes-per-book', 46) });
+  // --trace S: after the measured runs, S more seconds through the hub (shared cores) under a
+  // chromium trace, to show which thread and which rendering stage the CPU goes to.
+  const traceSeconds = process.argv.includes('--trace') ? arg('trace', 5) : 0;
+  const r = await runFrameBench({ seconds, underlyingsPerBook: arg('nodes-per-book', 46), traceSeconds });
   const f = (v: number): string => v.toFixed(1).padStart(8);
   const row = (name: string, s: FrameStats): string =>
     `${name.padEnd(8)}${String(s.frames).padStart(8)}${f(s.p50)}${f(s.p95)}${f(s.p99)}${f(s.max)}${String(s.longTasks).padStart(7)}${f(s.longTaskMs)}${String(Math.round(s.applied)).padStart(10)}${f(s.parse)}${f(s.apply)}${f(s.render)}`;
@@ -330,6 +422,14 @@ export async function printFrameBench(): Promise<void> {
         .map((l) => l.toFixed(2))
         .join(' ')} on ${cpus().length} CPUs\n`,
   );
+  if (r.threads) {
+    const list = (pairs: [string, number][]): string =>
+      pairs.map(([k, v]) => `${k} ${Math.round(v)}`).join(', ');
+    process.stdout.write(
+      `chromium CPU through the hub, traced (ms per s): ${list(r.threads.threads)}\n` +
+        `  page main thread by stage: ${list(r.threads.main)}\n`,
+    );
+  }
 }
 
 if (process.argv[1]?.endsWith('frames.ts')) await printFrameBench();
