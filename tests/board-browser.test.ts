@@ -232,6 +232,44 @@ describe.skipIf(!available)('desk view in chromium', () => {
     publishAll();
   });
 
+  it('reads the stream on the main thread where the browser has no workers', async () => {
+    const bare = await browser.context.newPage();
+    const errors: string[] = [];
+    bare.on('pageerror', (err) => errors.push(err.message));
+    bare.on('console', (msg) => {
+      if (msg.type() === 'error') errors.push(msg.text());
+    });
+    // The page falls back to its own EventSource and the same reader (wire.js) when Worker is absent.
+    await bare.addInitScript(() => {
+      delete (window as unknown as { Worker?: unknown }).Worker;
+    });
+    await bare.goto(server.url);
+    await bare.waitForSelector('body[data-ready="true"]');
+    const bareCell = (key: string, col: string) =>
+      bare.locator(`.grid-body .row[data-key="${key}"] .c-${col}`);
+    let leaf: ExposureMsg | undefined;
+    for (let i = 0; i < 20; i++) {
+      book.tick(1000);
+      publishAll();
+      leaf = book.exposures().find((e) => e.nodeKey === pelican)!;
+      await bare.waitForTimeout(120);
+      const text = (await bareCell(pelican, 'pv').textContent()) ?? '';
+      if (Math.abs(readFigure(text) - leaf.pv) <= Math.abs(leaf.pv) * 0.005) break;
+    }
+    const shown = readFigure((await bareCell(pelican, 'pv').textContent()) ?? '');
+    expect(Math.abs(shown - leaf!.pv)).toBeLessThanOrEqual(Math.abs(leaf!.pv) * 0.005);
+    // It did read on the main thread: no worker time was ever reported, parse time was.
+    const counters = await bare.evaluate(() => {
+      const c = (window as unknown as { keelsonBoard: { counters: { workerMs?: number; parseMs: number } } })
+        .keelsonBoard.counters;
+      return { workerMs: c.workerMs ?? null, parseMs: c.parseMs };
+    });
+    expect(counters.workerMs).toBeNull();
+    expect(counters.parseMs).toBeGreaterThan(0);
+    expect(errors).toEqual([]);
+    await bare.close();
+  });
+
   it('puts a limit breach in the alert panel, on the limit bar and in the assertive live region', async () => {
     book.bumpVega('ORCA', Math.sign(orcaVega()) * vegaLimit.max! * 0.5);
     publishAll();
