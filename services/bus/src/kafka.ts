@@ -116,7 +116,18 @@ export interface BatchContext {
   restoring: boolean;
 }
 
-export type KafkaBatchHandler = (batch: BusRecord[], ctx: BatchContext) => Promise<void>;
+/**
+ * What a handler may return when some outputs of its batch are still on their way (coalesced
+ * exposures waiting for the next flush): the bus moves on to the next batch at once and commits
+ * this batch's offset only after `outputsAcked` resolves, in batch order per partition, and only
+ * if the partition is still this member's (same generation). A handler that returns nothing has
+ * its batch committed right after it resolves.
+ */
+export interface HandledBatch {
+  outputsAcked: Promise<void>;
+}
+
+export type KafkaBatchHandler = (batch: BusRecord[], ctx: BatchContext) => Promise<void | HandledBatch>;
 
 interface PartitionProgress {
   /** First offset that is not restoring. */
@@ -144,6 +155,8 @@ interface Member {
   live: boolean;
   /** topic:partition -> next offset to handle (after the last handled batch), for the lag. */
   positions: Map<string, bigint>;
+  /** topic:partition -> the last deferred commit (they run in batch order). */
+  commits: Map<string, Promise<void>>;
 }
 
 export interface KafkaBusStatus {
@@ -228,6 +241,8 @@ export class KafkaBus implements Bus {
   private readonly members: Member[] = [];
   private lastConnected = false;
   private closed = false;
+  /** Set once close() has let the deferred commits land: later ones are not attempted. */
+  private leaving = false;
   private readonly fetchStaleAfterMs: number;
   /** Staleness is a matter of time, not of an event: re-evaluated every second while consuming. */
   private staleTimer: ReturnType<typeof setInterval> | undefined;
@@ -367,6 +382,7 @@ export class KafkaBus implements Bus {
       progress: new Map(),
       live: false,
       positions: new Map(),
+      commits: new Map(),
     };
     this.members.push(member);
     this.watch(member);
@@ -423,34 +439,66 @@ export class KafkaBus implements Bus {
     }
     if (member.opts.rebuild && !member.live) return; // a held-back partition's batch in flight
 
-    await this.withHeartbeat(p, () =>
+    const handled = await this.withHeartbeat(p, () =>
       handler(records, { groupId: member.groupId, generation, restoring: false }),
     );
     // A batch handled across a rebalance is not ours to commit: its new owner reads it again.
     if (member.generation !== generation) return;
     p.resolveOffset(last.offset);
     member.positions.set(`${topic}:${batch.partition}`, BigInt(last.offset) + 1n);
-    if (commit) {
-      await p.commitOffsetsIfNecessary({
-        topics: [
-          {
-            topic: batch.topic,
-            partitions: [{ partition: batch.partition, offset: (BigInt(last.offset) + 1n).toString() }],
-          },
-        ],
-      });
+    if (!commit) return;
+    const next = (BigInt(last.offset) + 1n).toString();
+    if (handled) {
+      this.commitWhenAcked(member, generation, batch.topic, batch.partition, next, handled.outputsAcked);
+      return;
     }
+    await p.commitOffsetsIfNecessary({
+      topics: [{ topic: batch.topic, partitions: [{ partition: batch.partition, offset: next }] }],
+    });
+  }
+
+  /**
+   * A deferred commit: after the batch's outputs and every earlier deferred commit of the
+   * partition. Failures are not fatal: a later batch's commit covers this one, and a partition
+   * that moved is read again by its new owner from the last commit that did land.
+   */
+  private commitWhenAcked(
+    member: Member,
+    generation: number,
+    topic: string,
+    partition: number,
+    offset: string,
+    acked: Promise<void>,
+  ): void {
+    const key = `${topic}:${partition}`;
+    const prev = member.commits.get(key) ?? Promise.resolve();
+    const done = prev
+      .then(() => acked)
+      .then(async () => {
+        if (member.generation !== generation || member.state === 'stopped' || this.leaving) return;
+        await member.consumer.commitOffsets([{ topic, partition, offset }]);
+      })
+      .catch((err: unknown) =>
+        this.opts.logger?.debug(
+          { groupId: member.groupId, topic, partition, offset, err: (err as Error).message },
+          'deferred offset commit not made',
+        ),
+      );
+    member.commits.set(key, done);
+    void done.then(() => {
+      if (member.commits.get(key) === done) member.commits.delete(key);
+    });
   }
 
   /** A slow handler (a publish waiting for a broker that came back) must not cost the partition. */
-  private async withHeartbeat(p: EachBatchPayload, work: () => Promise<void>): Promise<void> {
+  private async withHeartbeat<T>(p: EachBatchPayload, work: () => Promise<T>): Promise<T> {
     // kafkajs throttles heartbeats to its interval; calling more often is harmless.
     const beat = setInterval(
       () => void p.heartbeat().catch(() => undefined),
       Math.max(100, Math.floor((this.opts.heartbeatIntervalMs ?? DEFAULTS.heartbeatIntervalMs) / 2)),
     );
     try {
-      await work();
+      return await work();
     } finally {
       clearInterval(beat);
     }
@@ -887,6 +935,12 @@ export class KafkaBus implements Bus {
     if (this.closed) return;
     this.closed = true;
     clearInterval(this.staleTimer);
+    // Deferred commits whose outputs are already acknowledged land before the group is left; a
+    // commit still waiting for outputs after a few seconds is left to the next owner to redo.
+    const commits = this.members.flatMap((m) => [...m.commits.values()]);
+    if (commits.length)
+      await Promise.race([Promise.allSettled(commits), new Promise((r) => setTimeout(r, 5_000).unref())]);
+    this.leaving = true;
     await Promise.allSettled(this.members.map((m) => m.consumer.disconnect()));
     if (this.adminReady) await this.adminReady.then((a) => a.disconnect()).catch(() => undefined);
     if (this.producerReady) {
