@@ -355,7 +355,6 @@ export async function runKafkaPipeline(opts: {
       metrics,
       observer: metrics.observer,
       publishIntervalMs: a.publishIntervalMs,
-      holdForExposures: true,
       onPublished,
       onError,
       ...(outputs ? { outputTopics: outputs } : {}),
@@ -386,7 +385,8 @@ export async function runKafkaPipeline(opts: {
         [...TABLE_TOPICS, ...KEYED_TOPICS],
         async (batch: BusRecord[], ctx: BatchContext) => {
           if (ctx.restoring) return restoreInto(engine, batch);
-          await runner.handle(batch);
+          // Committed once its exposures are acknowledged; the next batch is fetched meanwhile.
+          return runner.handleUntilAcked(batch);
         },
         {
           rebuild: true,
@@ -485,7 +485,7 @@ export async function runKafkaPipeline(opts: {
           const e = engines.get(p);
           if (!e) throw new Error(`a batch of partition ${p}, which this instance does not own`);
           if (ctx.restoring) return restoreInto(e.pe.engine, batch);
-          await e.runner.handle(batch);
+          return e.runner.handleUntilAcked(batch);
         },
         {
           rebuild: true,
@@ -585,7 +585,7 @@ export async function runKafkaPipeline(opts: {
             agg.drain();
             return;
           }
-          await out.emit(agg.drain());
+          return out.emit(agg.drain());
         },
         {
           rebuild: true,
@@ -611,7 +611,9 @@ export async function runKafkaPipeline(opts: {
             log.info({ limits: restored.length }, 'limit levels continue from the alerts topic');
             agg.touchAll();
             live = true;
-            await out.emit(agg.drain());
+            await (
+              await out.emit(agg.drain())
+            ).outputsAcked;
             checks.stateRebuilt = { ok: true, detail: 'rebuilt; summing partials' };
             metrics.setReady(true);
             log.info({ nodes: agg.snapshot().length }, 'rebuilt from the partials; live');
@@ -759,12 +761,13 @@ function partialsBus(bus: KafkaBus) {
 
 /**
  * The aggregate stage's outputs: alerts published at once and awaited; exposures coalesced per
- * node over the publish interval, the handler waiting for the flush that carries them.
+ * node over the publish interval, acknowledged through `outputsAcked` (the batch is committed
+ * after it; the handler does not wait for it). A failed flush keeps its exposures and retries.
  */
 class AggregateOutput {
   private pending = new Map<string, ExposureMsg>();
   private timer: NodeJS.Timeout | null = null;
-  private waiters: { resolve: () => void; reject: (e: unknown) => void }[] = [];
+  private waiters: (() => void)[] = [];
   private chain: Promise<void> = Promise.resolve();
   private lastFlush = 0;
 
@@ -774,8 +777,9 @@ class AggregateOutput {
     private readonly onPublished: (p: Published) => void,
   ) {}
 
-  async emit(o: { exposures: ExposureMsg[]; alerts: AlertMsg[] }): Promise<void> {
+  async emit(o: { exposures: ExposureMsg[]; alerts: AlertMsg[] }): Promise<{ outputsAcked: Promise<void> }> {
     const work: Promise<void>[] = [];
+    let outputsAcked: Promise<void> = Promise.resolve();
     if (o.alerts.length) {
       const alerts = o.alerts;
       work.push(
@@ -793,12 +797,19 @@ class AggregateOutput {
         this.pending.delete(e.nodeKey);
         this.pending.set(e.nodeKey, e);
       }
-      work.push(new Promise((resolve, reject) => this.waiters.push({ resolve, reject })));
-      const wait = Math.max(0, this.lastFlush + this.intervalMs - Date.now());
-      if (!this.timer)
-        this.timer = setTimeout(() => void this.enqueue(() => this.flush()).catch(() => undefined), wait);
+    }
+    if (this.pending.size) {
+      outputsAcked = new Promise((resolve) => this.waiters.push(resolve));
+      this.arm();
     }
     await Promise.all(work);
+    return { outputsAcked };
+  }
+
+  private arm(): void {
+    if (this.timer) return;
+    const wait = Math.max(0, this.lastFlush + this.intervalMs - Date.now());
+    this.timer = setTimeout(() => void this.enqueue(() => this.flush()).catch(() => undefined), wait);
   }
 
   private enqueue(fn: () => Promise<void>): Promise<void> {
@@ -822,11 +833,12 @@ class AggregateOutput {
         );
     } catch (e) {
       for (const x of exposures) if (!this.pending.has(x.nodeKey)) this.pending.set(x.nodeKey, x);
-      for (const w of waiters) w.reject(e);
-      return;
+      this.waiters = waiters.concat(this.waiters);
+      this.arm();
+      throw e;
     }
     this.onPublished({ exposures, alerts: [], rejected: [] });
-    for (const w of waiters) w.resolve();
+    for (const w of waiters) w();
   }
 
   async stop(): Promise<void> {

@@ -254,28 +254,60 @@ describe('EngineRunner', () => {
     await bus.close();
   });
 
-  it('with holdForExposures resolves a batch only after the flush that carries it', async () => {
+  it('handleUntilAcked returns at once, and its acknowledgement waits for the flush that carries it', async () => {
     let now = 0;
     const bus = new MemoryBus();
     const engine = new FakeEngine();
-    const runner = new EngineRunner({
-      engine,
-      bus,
-      publishIntervalMs: 30,
-      holdForExposures: true,
-      now: () => now,
-    });
-    await runner.handle([{ topic: 'spots', key: 'AX', value: spot('AX', 1, 0).value }]); // due at once
+    const runner = new EngineRunner({ engine, bus, publishIntervalMs: 30, now: () => now });
+    const first = await runner.handleUntilAcked([
+      { topic: 'spots', key: 'AX', value: spot('AX', 1, 0).value },
+    ]);
+    await first.outputsAcked; // due at once
+    expect(runner.stats().exposuresPublished).toBe(2);
     now = 5;
-    let done = false;
-    const p = runner
-      .handle([{ topic: 'spots', key: 'AX', value: spot('AX', 2, 5).value }])
-      .then(() => (done = true));
+    const second = await runner.handleUntilAcked([
+      { topic: 'spots', key: 'AX', value: spot('AX', 2, 5).value },
+    ]);
+    let acked = false;
+    void second.outputsAcked.then(() => (acked = true));
     await new Promise((r) => setTimeout(r, 5));
-    expect(done).toBe(false);
+    // kept for the flush: neither applied nor published yet, and the handler did not wait for it
+    expect(acked).toBe(false);
+    expect(engine.ingested).toHaveLength(1);
+    expect(runner.stats().exposuresPublished).toBe(2);
     now = 40;
-    await p; // the flush timer (25 ms of real time) publishes and releases it
+    await second.outputsAcked; // the flush timer (25 ms of real time) applies, publishes, releases it
+    expect(engine.ingested).toHaveLength(2);
     expect(runner.stats().exposuresPublished).toBe(4);
+    await bus.close();
+  });
+
+  it('a failed flush keeps its exposures and acknowledgements and is retried', async () => {
+    let now = 0;
+    const bus = new MemoryBus();
+    let failures = 1;
+    const publish = bus.publish.bind(bus);
+    bus.publish = async (topic, records) => {
+      if (topic === 'exposures' && failures-- > 0) throw new Error('broker away');
+      return publish(topic, records);
+    };
+    const errors: string[] = [];
+    const runner = new EngineRunner({
+      engine: new FakeEngine(),
+      bus,
+      publishIntervalMs: 20,
+      now: () => now,
+      onError: (err, context) => errors.push(`${context}: ${(err as Error).message}`),
+    });
+    const got = await runner.handleUntilAcked([{ topic: 'spots', key: 'AX', value: spot('AX', 1, 0).value }]);
+    let acked = false;
+    void got.outputsAcked.then(() => (acked = true));
+    await new Promise((r) => setTimeout(r, 5));
+    expect(errors).toEqual(['exposure flush: broker away']);
+    expect(acked).toBe(false);
+    now = 25;
+    await got.outputsAcked; // the retry one interval later carries them
+    expect(runner.stats().exposuresPublished).toBe(2);
     await bus.close();
   });
 

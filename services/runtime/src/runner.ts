@@ -8,8 +8,11 @@
 // publish interval: by default the handler does not wait for the next exposure flush (waiting
 // would add up to one interval to every later tick, because no further batch is delivered while a
 // handler runs); a lost pending flush is repaired by the next change of the node, the decay clock,
-// or the full snapshot a restarted engine publishes after rebuilding. `holdForExposures: true`
-// makes the handler wait for the flush that carries its exposures (commit strictly after them).
+// or the full snapshot a restarted engine publishes after rebuilding. A transport that commits
+// offsets calls `handleUntilAcked` instead: it resolves as soon as the batch is applied (so the
+// next batch is fetched meanwhile) with a promise of the flush that carries its exposures, and
+// commits after that (at-least-once without waiting a publish interval per batch). A failed flush
+// keeps its exposures pending and is retried one interval later.
 import { INPUT_TOPICS, TOPICS } from '@keelson/shared-types';
 import type { AlertMsg, ExposureMsg, RejectedMsg, StaleFeedMsg } from '@keelson/shared-types';
 import type { Bus, BusRecord, OutRecord } from '@keelson/bus';
@@ -79,8 +82,6 @@ export interface RunnerOptions {
   minPublishIntervalMs?: number;
   /** Calls engine.revalueAll() this often (theta, tenor buckets, expiries, staleness); 0 = never (event clock). */
   decayIntervalMs?: number;
-  /** Resolve a batch only after the exposure flush that carries it (see the file comment). Default false. */
-  holdForExposures?: boolean;
   /** Wall clock, epoch ms: publish times, tick-to-publish and bus-to-publish latency. Default Date.now. */
   now?: () => number;
   metrics?: RunnerMetrics;
@@ -138,7 +139,13 @@ export class EngineRunner {
   private decayTimer: NodeJS.Timeout | null = null;
   /** Every publish goes through this chain, so outputs leave in the order they were produced. */
   private chain: Promise<void> = Promise.resolve();
-  private flushWaiters: { resolve: () => void; reject: (e: unknown) => void }[] = [];
+  /** Released by the next successful flush (handleUntilAcked's promises). */
+  private flushWaiters: (() => void)[] = [];
+  /** Batches taken by handleUntilAcked, applied at the next flush. */
+  private buffered: BusRecord[][] = [];
+  /** Events produced and not yet acknowledged, in order. */
+  private queuedAlerts: Signal[] = [];
+  private queuedRejected: RejectedMsg[] = [];
   private started = false;
   private stopped = false;
   private readonly counters: RunnerStats = {
@@ -192,6 +199,54 @@ export class EngineRunner {
 
   /** The batch handler the bus calls. Exposed for transports that deliver batches themselves. */
   async handle(batch: BusRecord[]): Promise<void> {
+    this.settle();
+    const { out, ticks } = this.applyBatch(batch);
+    this.collect(out, ticks);
+    await this.release();
+  }
+
+  /** Events now (in order, through the chain); exposures now if due, else at the flush timer. */
+  private async release(): Promise<void> {
+    const work: Promise<void>[] = [];
+    if (this.queuedAlerts.length || this.queuedRejected.length)
+      work.push(this.enqueue(() => this.publishQueuedEvents()));
+    if (this.pending.size > 0) {
+      if (this.isDue()) work.push(this.enqueue(() => this.flush()));
+      else this.armFlushTimer();
+    }
+    await Promise.all(work);
+  }
+
+  /**
+   * For a transport that commits offsets (Kafka): the batch is kept and applied at the next flush,
+   * together with every batch that arrived meanwhile, so that spots are conflated per underlying
+   * over the publish interval rather than within one small fetch (the exposures leave at that
+   * flush either way, so this adds no latency). Resolves at once; `outputsAcked` resolves when
+   * everything the batch caused (events, then exposures) is acknowledged.
+   */
+  async handleUntilAcked(batch: BusRecord[]): Promise<{ outputsAcked: Promise<void> }> {
+    if (batch.length) this.buffered.push(batch);
+    const outputsAcked = new Promise<void>((resolve) => this.flushWaiters.push(resolve));
+    if (this.isDue())
+      this.enqueue(() => this.flush()).catch((err: unknown) => this.opts.onError?.(err, 'exposure flush'));
+    else this.armFlushTimer();
+    return { outputsAcked };
+  }
+
+  private isDue(): boolean {
+    return this.stopped || this.now() - this.lastFlushAt >= this.interval;
+  }
+
+  /** Applies the batches kept by handleUntilAcked, as one. */
+  private settle(): void {
+    if (this.buffered.length === 0) return;
+    const batch = this.buffered.length === 1 ? (this.buffered[0] as BusRecord[]) : this.buffered.flat();
+    this.buffered = [];
+    const { out, ticks } = this.applyBatch(batch);
+    this.collect(out, ticks);
+  }
+
+  private applyBatch(batch: BusRecord[]): { out: Drained; ticks: PendingTick[] } {
     const t0 = performance.now();
     const plan = planBatch(batch);
     const ticks: PendingTick[] = [];
@@ -235,7 +290,7 @@ export class EngineRunner {
     const out = this.drainEngine();
     this.opts.metrics?.batchProcessed((performance.now() - t0) / 1000);
     if (internal.length) out.rejected = [...out.rejected, ...internal];
-    await this.absorb(out, ticks);
+    return { out, ticks };
   }
 
   /** Publishes whatever exposures are waiting, now. */
@@ -266,9 +321,11 @@ export class EngineRunner {
   private async decay(): Promise<void> {
     if (this.stopped) return;
     try {
+      this.settle();
       this.engine.revalueAll();
       this.counters.decayRuns++;
-      await this.absorb(this.drainEngine(), []);
+      this.collect(this.drainEngine(), []);
+      await this.release();
     } catch (err) {
       this.counters.internalErrors++;
       this.opts.onError?.(err, 'decay');
@@ -281,7 +338,8 @@ export class EngineRunner {
     return e.drain();
   }
 
-  private async absorb(out: Drained, ticks: PendingTick[]): Promise<void> {
+  /** Takes a drain's outputs: exposures into the pending map, events into the queue. */
+  private collect(out: Drained, ticks: PendingTick[]): void {
     // Re-insert so that Map order tracks the latest change and a flush is in change order.
     const pending = this.pending;
     const touched = ticks.length ? new Set<string>() : null;
@@ -299,19 +357,8 @@ export class EngineRunner {
       }
     // Only ticks that moved a node of their own underlying have a publication to wait for.
     if (touched) for (const t of ticks) if (touched.has(t.underlying)) this.pendingTicks.push(t);
-    const events: Promise<void>[] = [];
-    if (out.alerts.length || out.rejected.length)
-      events.push(this.enqueue(() => this.publishEvents(out.alerts, out.rejected)));
-    const due = this.stopped || this.now() - this.lastFlushAt >= this.interval;
-    if (this.pending.size > 0) {
-      if (due) events.push(this.enqueue(() => this.flush()));
-      else {
-        this.armFlushTimer();
-        if (this.opts.holdForExposures)
-          events.push(new Promise((resolve, reject) => this.flushWaiters.push({ resolve, reject })));
-      }
-    }
-    await Promise.all(events);
+    for (const a of out.alerts) this.queuedAlerts.push(a);
+    for (const r of out.rejected) this.queuedRejected.push(r);
   }
 
   private armFlushTimer(): void {
@@ -331,7 +378,13 @@ export class EngineRunner {
     return run;
   }
 
-  private async publishEvents(alerts: Signal[], rejected: RejectedMsg[]): Promise<void> {
+  /** Publishes the queued events in the order produced; on failure they stay queued, first. */
+  private async publishQueuedEvents(): Promise<void> {
+    const alerts = this.queuedAlerts;
+    const rejected = this.queuedRejected;
+    if (alerts.length === 0 && rejected.length === 0) return;
+    this.queuedAlerts = [];
+    this.queuedRejected = [];
     const work: Promise<void>[] = [];
     if (alerts.length) work.push(this.bus.publish(this.topics.alerts, alerts.map(signalRecord)));
     if (rejected.length)
@@ -341,7 +394,14 @@ export class EngineRunner {
           rejected.map((r) => ({ key: null, value: JSON.stringify(r) })),
         ),
       );
-    await Promise.all(work);
+    try {
+      await Promise.all(work);
+    } catch (err) {
+      // Published again whole: a duplicate alert or dead letter is harmless, a lost one is not.
+      this.queuedAlerts = alerts.concat(this.queuedAlerts);
+      this.queuedRejected = rejected.concat(this.queuedRejected);
+      throw err;
+    }
     this.counters.alertsPublished += alerts.length;
     this.counters.rejectedPublished += rejected.length;
     this.opts.onPublished?.({ exposures: [], alerts, rejected });
@@ -354,15 +414,26 @@ export class EngineRunner {
     }
     const waiters = this.flushWaiters;
     this.flushWaiters = [];
+    const startedAt = this.now();
+    this.settle();
+    // A flush with nothing to send does not count as one: the next change may leave at once.
+    if (this.pending.size > 0 || this.queuedAlerts.length || this.queuedRejected.length)
+      this.lastFlushAt = startedAt;
+    try {
+      await this.publishQueuedEvents();
+    } catch (err) {
+      this.flushWaiters = waiters.concat(this.flushWaiters);
+      this.armFlushTimer();
+      throw err;
+    }
     if (this.pending.size === 0) {
-      for (const w of waiters) w.resolve();
+      for (const w of waiters) w();
       return;
     }
     const entries = [...this.pending.values()];
     const ticks = this.pendingTicks;
     this.pending = new Map();
     this.pendingTicks = [];
-    this.lastFlushAt = this.now();
     // A source is read now, at its latest value: the value every exposure it superseded would have
     // been replaced by anyway (latest wins). Message objects are only built for a listener.
     const wantObjects = this.opts.onPublished !== undefined;
@@ -387,7 +458,9 @@ export class EngineRunner {
         if (!this.pending.has(key)) this.pending.set(key, e);
       }
       this.pendingTicks = ticks.concat(this.pendingTicks);
-      for (const w of waiters) w.reject(err);
+      // Their acknowledgement is the retry's, one interval from now (or the next batch's flush).
+      this.flushWaiters = waiters.concat(this.flushWaiters);
+      this.armFlushTimer();
       throw err;
     }
     const wall = this.now();
@@ -406,7 +479,7 @@ export class EngineRunner {
       }
     this.counters.exposuresPublished += entries.length;
     this.opts.onPublished?.({ exposures, alerts: [], rejected: [] });
-    for (const w of waiters) w.resolve();
+    for (const w of waiters) w();
   }
 }
 
