@@ -9,10 +9,10 @@
 // would add up to one interval to every later tick, because no further batch is delivered while a
 // handler runs); a lost pending flush is repaired by the next change of the node, the decay clock,
 // or the full snapshot a restarted engine publishes after rebuilding. A transport that commits
-// offsets calls `handleUntilAcked` instead: it resolves as soon as the batch is applied (so the
-// next batch is fetched meanwhile) with a promise of the flush that carries its exposures, and
-// commits after that (at-least-once without waiting a publish interval per batch). A failed flush
-// keeps its exposures pending and is retried one interval later.
+// offsets calls `handleUntilAcked` instead: the batch is kept and applied at the next flush (spots
+// conflate over the interval), the call resolves at once (the next batch is fetched meanwhile)
+// with a promise of that flush's acknowledgement, and the transport commits after it. A failed
+// flush keeps its events and exposures queued and is retried one interval later.
 import { INPUT_TOPICS, TOPICS } from '@keelson/shared-types';
 import type { AlertMsg, ExposureMsg, RejectedMsg, StaleFeedMsg } from '@keelson/shared-types';
 import type { Bus, BusRecord, OutRecord } from '@keelson/bus';
