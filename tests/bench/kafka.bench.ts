@@ -4,20 +4,19 @@
 //     ingested, revalued, published and acknowledged), and the ratio of the two;
 //  3. tick-to-exposure latency at a steady tick rate: from a tick's publish to the arrival, at a
 //     reader of the exposures topic, of its underlying's exposure valued after it.
-// Book: the simulator's invented universe. `npm run bench -- kafka`; BENCH_TICKS, BENCH_RATE,
-// BENCH_TRADES tune it.
+// Book: the engine benchmark's 100 000 positions over 500 underlyings (tests/bench/book.ts), the
+// book the targets name. `npm run bench -- kafka`; BENCH_TICKS and BENCH_RATE tune it.
 import { spawn } from 'node:child_process';
 import { join } from 'node:path';
 import kafkajs from 'kafkajs';
 import { KafkaBus, ensureTopics, topicPlan } from '@keelson/bus';
-import { MarketSim } from '@keelson/sim';
 import { inputKey, inputTopic } from '@keelson/shared-types';
 import type { ExposureMsg, InputMsg, SpotMsg } from '@keelson/shared-types';
 import { findBroker, uniquePrefix } from '../support/kafka.ts';
+import { POSITIONS, UNDERLYINGS, bookMessages } from './book.ts';
 
 const TICKS = Number(process.env.BENCH_TICKS ?? 100_000);
-const RATE = Number(process.env.BENCH_RATE ?? 2_000);
-const TRADES = Number(process.env.BENCH_TRADES ?? 20_000);
+const RATE = Number(process.env.BENCH_RATE ?? 10_000);
 const PUBLISH_MS = Number(process.env.BENCH_PUBLISH_MS ?? 100);
 const LATENCY_SECONDS = 10;
 
@@ -50,8 +49,7 @@ async function publishAll(msgs: InputMsg[]): Promise<void> {
 }
 
 const startMs = Date.now();
-const sim = new MarketSim({ seed: 3, startMs, trades: TRADES });
-const boot = sim.bootstrap();
+const boot = [...bookMessages(startMs)];
 const spots = boot.filter((m): m is SpotMsg => m.type === 'spot');
 const prices = new Map(spots.map((s) => [s.underlying, s.price]));
 const names = [...prices.keys()];
@@ -87,6 +85,8 @@ function startEngine(group: string): { log: () => string; stop: () => Promise<vo
   const child = spawn(
     process.execPath,
     [
+      // BENCH_CPU_PROF=DIR writes a V8 CPU profile of each engine run there (see where time goes).
+      ...(process.env.BENCH_CPU_PROF ? ['--cpu-prof', '--cpu-prof-dir', process.env.BENCH_CPU_PROF] : []),
       bin,
       'run',
       '--brokers',
@@ -120,7 +120,7 @@ function startEngine(group: string): { log: () => string; stop: () => Promise<vo
 }
 
 console.log(
-  `kafka bench: broker ${brokers.join(',')} (${broker.source}), ${TRADES} trades over ${names.length} underlyings, ${TICKS} ticks`,
+  `kafka bench: broker ${brokers.join(',')} (${broker.source}), ${POSITIONS} positions over ${UNDERLYINGS} underlyings, ${TICKS} ticks`,
 );
 await publishAll(boot);
 
@@ -141,11 +141,11 @@ await publishAll(backlog);
 const publishS = (performance.now() - t0) / 1000;
 const totalSpots = spots.length + TICKS;
 
-// 1. Bare kafkajs: fetch and count, nothing else.
-let bareRate = 0;
-{
+// 1. Bare kafkajs: fetch and count, nothing else (the target's reference); and, for context, the
+//    same consumer decoding each value as JSON, the least any consumer of these ticks must do.
+async function bareDrain(group: string, look: (value: Buffer | null) => void): Promise<number> {
   const consumer = kafka.consumer({
-    groupId: `${prefix}bare`,
+    groupId: `${prefix}${group}`,
     maxWaitTimeInMs: 50,
     maxBytesPerPartition: 4 * 1024 * 1024,
   });
@@ -159,6 +159,7 @@ let bareRate = 0;
     void consumer.run({
       partitionsConsumedConcurrently: 6,
       eachBatch: async ({ batch }) => {
+        for (const m of batch.messages) look(m.value);
         n += batch.messages.length;
         if (n >= totalSpots) resolve();
       },
@@ -167,8 +168,13 @@ let bareRate = 0;
   await done;
   const s = (performance.now() - first) / 1000;
   await consumer.disconnect();
-  bareRate = totalSpots / s;
+  return totalSpots / s;
 }
+let sink = 0;
+const bareRate = await bareDrain('bare', () => undefined);
+const parseRate = await bareDrain('bare-json', (v) => {
+  sink += (JSON.parse(v!.toString()) as { price: number }).price > 0 ? 1 : 0;
+});
 
 // 2. The engine: restart, rebuild (the book), then drain the tick backlog live.
 engine = startEngine(group);
@@ -239,6 +245,9 @@ console.log(
   `publish of ${TICKS} ticks (kafkajs producer, idempotent, acks=all): ${(TICKS / publishS).toFixed(0)} msg/s`,
 );
 console.log(`bare kafkajs consumer drain:   ${bareRate.toFixed(0)} ticks/s`);
+console.log(
+  `  same, JSON.parse of each value: ${parseRate.toFixed(0)} ticks/s (${(parseRate / bareRate).toFixed(3)} of bare; ${sink} parsed)`,
+);
 console.log(
   `keelson run (role all) drain:  ${engineRate.toFixed(0)} ticks/s (ingest, revalue, publish, ack, commit)`,
 );
