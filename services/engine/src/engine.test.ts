@@ -545,6 +545,41 @@ describe('stale feeds', () => {
     expect(mustNode(e, 'firm').stale).toBe(false);
   });
 
+  it('after a rebuild, announces what the rebuild passed over silently and nothing that was already said', () => {
+    // A rebuild drops its outputs: ACME went stale during it, ZED is fresh, BOLT was raised before
+    // and is fresh again, QUIX was raised before and is still stale. (Contract: one stale-feed event
+    // per transition; the gap rule is ours, DECISIONS.md.)
+    const e = engine({ staleAfterMs: 5000 });
+    feed(e, [...acmeMarket(), underlying('QUIX'), spot('QUIX', 1), underlying('BOLT'), underlying('ZED')]);
+    feed(e, [spot('BOLT', 1, T0 + 9000), spot('ZED', 1, T0 + 9000)]);
+    e.drain(); // the rebuild's outputs, dropped
+    const published = new Map<string, 'raised' | 'cleared'>([
+      ['BOLT', 'raised'],
+      ['QUIX', 'raised'],
+      ['ZED', 'cleared'],
+    ]);
+    const want: StaleFeedMsg[] = [
+      { type: 'stale-feed', underlying: 'ACME', state: 'raised', lastTick: iso(T0), ts: iso(T0 + 9000) },
+      {
+        type: 'stale-feed',
+        underlying: 'BOLT',
+        state: 'cleared',
+        lastTick: iso(T0 + 9000),
+        ts: iso(T0 + 9000),
+      },
+    ];
+    expect(e.reconcileFeeds(published)).toEqual(want);
+    expect(e.drain().alerts).toEqual(want);
+    // agreed now: a second reconciliation against the updated record says nothing
+    published.set('ACME', 'raised').set('BOLT', 'cleared');
+    expect(e.reconcileFeeds(published)).toEqual([]);
+    // and the next live transition follows on from what was announced
+    feed(e, [spot('ACME', 100, T0 + 9500)]);
+    expect(e.drain().alerts.map((a) => `${a.type === 'stale-feed' ? a.underlying : ''} ${a.state}`)).toEqual([
+      'ACME cleared',
+    ]);
+  });
+
   it('ignores a spot older than the one held (out of order on its key)', () => {
     const e = engine();
     feed(e, [underlying('ACME'), spot('ACME', 10, T0 + 10), trade({ id: 'L', linear: true })]);

@@ -384,6 +384,33 @@ export class RiskEngine {
     return this.limitBook.openAlerts();
   }
 
+  /**
+   * After a rebuild, before going live: brings what operations were last told about each feed
+   * (`published`: the latest stale-feed state per underlying on the alerts topic; absent = never
+   * raised) in line with the rebuilt state. A rebuild applies history with its outputs dropped, so
+   * a feed that went stale, or fresh again, while no instance was running would otherwise never be
+   * announced, and its next change would announce the wrong transition. Queues one event per
+   * feed that differs (out with the next drain) and returns them; changes no state.
+   */
+  reconcileFeeds(published: ReadonlyMap<string, 'raised' | 'cleared'>): StaleFeedMsg[] {
+    const t = this.clock ? Math.max(this.valuationMs, this.clock.now()) : this.eventMs;
+    const out: StaleFeedMsg[] = [];
+    for (const u of this.undList) {
+      if (!u.hasSpot || u.stale === (published.get(u.name) === 'raised')) continue;
+      const e: StaleFeedMsg = {
+        type: 'stale-feed',
+        underlying: u.name,
+        state: u.stale ? 'raised' : 'cleared',
+        lastTick: formatTs(u.lastTickMs),
+        ts: formatTs(t),
+      };
+      this.outAlerts.push(e);
+      this.observer?.staleFeed?.(e);
+      out.push(e);
+    }
+    return out;
+  }
+
   utilizations(): { limitId: string; utilization: number }[] {
     return this.limitBook.utilizations();
   }
