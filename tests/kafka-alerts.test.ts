@@ -1,6 +1,7 @@
 // Risk control gets every breach and clearance once, with one alertId per episode, across a hard
 // kill and restart of the process that judges the limit: role all, and the aggregate stage of a
-// scale-out (where the limit watches a desk whose positions sit on two input partitions).
+// scale-out (where the limit watches a desk whose positions sit on two input partitions). And
+// operations get a feed that went stale while no instance ran, once, followed by its clearance.
 //
 // Values are by the contract alone (contract-v1.md): a linear position's pv is q x m x S; the
 // limit's utilization is pv / max; with warnAt 0.8 and hysteresis 0.05 u >= 1 is a breach and a
@@ -11,7 +12,7 @@ import { afterAll, describe, expect, it } from 'vitest';
 import { KafkaBus, ensureTopics, javaPartition, topicPlan } from '@keelson/bus';
 import type { BusRecord } from '@keelson/bus';
 import { TOPICS } from '@keelson/shared-types';
-import type { AlertMsg } from '@keelson/shared-types';
+import type { AlertMsg, StaleFeedMsg } from '@keelson/shared-types';
 import { findBroker, uniquePrefix } from './support/kafka.ts';
 
 const broker = await findBroker();
@@ -245,4 +246,81 @@ describe.skipIf(!broker)('limit alerts on Kafka across restarts', () => {
     for (const x of [agg, e1, e2]) x.child.kill('SIGTERM');
     for (const x of [agg, e1, e2]) expect(await x.exited).toBe(0);
   }, 240_000);
+
+  it('a feed that goes stale while the engine is down is raised once on restart, then cleared by its next tick', async () => {
+    // Wall clock (the default): time passes while no instance runs, and the rebuild, which
+    // publishes nothing of what it replays, finds the feed stale. Threshold 20 s (the contract's
+    // rule: stale once the last spot is older than the threshold at valuation time).
+    const prefix = uniquePrefix('feeds');
+    const producer = new KafkaBus({ brokers, env: {}, topicPrefix: prefix });
+    buses.push(producer);
+    const admin = producer.admin();
+    await admin.connect();
+    await ensureTopics(admin, prefix, topicPlan({ partitions: PARTITIONS }));
+    await admin.disconnect();
+    const U = 'FENWA';
+    const send = (topic: string, msg: object) =>
+      producer.publish(topic, [{ key: U, value: JSON.stringify(msg) }]);
+    const firstTick = Date.now();
+    await send(TOPICS.refdata, {
+      type: 'underlying',
+      underlying: U,
+      kind: 'equity',
+      currency: 'USD',
+      ts: new Date(firstTick).toISOString(),
+    });
+    await send(TOPICS.spots, {
+      type: 'spot',
+      underlying: U,
+      price: 50,
+      ts: new Date(firstTick).toISOString(),
+    });
+    const feeds: StaleFeedMsg[] = [];
+    const reader = new KafkaBus({ brokers, env: {}, topicPrefix: prefix, groupId: `${prefix}reader` });
+    buses.push(reader);
+    await reader.subscribe([TOPICS.alerts], async (batch: BusRecord[]) => {
+      for (const r of batch) {
+        const f = JSON.parse(r.value) as StaleFeedMsg;
+        if (f.type === 'stale-feed') feeds.push(f);
+      }
+    });
+    const args = [
+      'run',
+      '--topic-prefix',
+      prefix,
+      '--group',
+      `${prefix}g`,
+      '--stale-after',
+      '20',
+      '--port',
+      '0',
+    ];
+    let p = keelson(args);
+    children.push(p.child);
+    await until('live', () => /rebuilt from the topics; live/.test(p.log()), 60_000, p.log);
+    expect(Date.now() - firstTick).toBeLessThan(20_000); // still fresh when it went down
+    p.child.kill('SIGKILL');
+    await p.exited;
+    await until('the spot to age past the threshold', () => Date.now() - firstTick > 21_000, 30_000);
+
+    p = keelson(args);
+    children.push(p.child);
+    await until('live again', () => /rebuilt from the topics; live/.test(p.log()), 60_000, p.log);
+    await until('the raised', () => feeds.length >= 1, 30_000, p.log);
+    p.child.kill('SIGKILL'); // down again with the feed stale, and this time it was announced
+    await p.exited;
+    p = keelson(args);
+    children.push(p.child);
+    await until('live a third time', () => /rebuilt from the topics; live/.test(p.log()), 60_000, p.log);
+    await send(TOPICS.spots, { type: 'spot', underlying: U, price: 51, ts: new Date().toISOString() });
+    await until('the clearance', () => feeds.length >= 2, 30_000, p.log);
+    await new Promise((r) => setTimeout(r, 1500)); // anything stray would be here by now
+    expect(feeds.map((f) => `${f.underlying} ${f.state} ${f.lastTick}`)).toEqual([
+      `${U} raised ${new Date(firstTick).toISOString()}`,
+      `${U} cleared ${feeds[1]?.lastTick}`,
+    ]);
+    expect(Date.parse(feeds[1]!.lastTick)).toBeGreaterThan(firstTick);
+    p.child.kill('SIGTERM');
+    expect(await p.exited).toBe(0);
+  }, 180_000);
 });

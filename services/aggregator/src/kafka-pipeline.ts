@@ -185,14 +185,22 @@ function isConversionSpot(r: BusRecord, rep: string): boolean {
   return (k.slice(0, 3) === rep) !== (k.slice(3) === rep);
 }
 
+/** What risk control and operations were last told, per limit and per feed. */
+interface LastTold {
+  limits: Map<string, AlertMsg>;
+  feeds: Map<string, 'raised' | 'cleared'>;
+}
+
 /**
- * The latest alert per limitId on the alerts topic, read to its end: what risk control was last
- * told. A rebuilt limit book continues from it (restoreLimitLevels), so a restart or rebalance neither
- * raises an open episode again nor starts a new alertId for it. Stale-feed events share the topic
- * and are skipped; a record that is not JSON is skipped too (nothing of ours writes one).
+ * The latest alert per limitId and the latest stale-feed state per underlying on the alerts topic,
+ * read to its end. A rebuilt limit book continues from the former (restoreLimitLevels), so a
+ * restart or rebalance neither raises an open episode again nor starts a new alertId for it; a
+ * rebuilt engine announces the feeds whose state differs from the latter (reconcileFeeds). A
+ * record that is not JSON is skipped (nothing of ours writes one).
  */
-async function latestAlerts(bus: KafkaBus): Promise<Map<string, AlertMsg>> {
+async function latestAlerts(bus: KafkaBus): Promise<LastTold> {
   const latest = new Map<string, AlertMsg>();
+  const feeds = new Map<string, 'raised' | 'cleared'>();
   for (const r of await bus.readToEnd(TOPICS.alerts)) {
     let o: unknown;
     try {
@@ -203,8 +211,15 @@ async function latestAlerts(bus: KafkaBus): Promise<Map<string, AlertMsg>> {
     const a = o as Partial<AlertMsg> | null;
     if (a?.type === 'alert' && typeof a.limitId === 'string' && typeof a.alertId === 'string')
       latest.set(a.limitId, a as AlertMsg);
+    const f = o as Partial<StaleFeedMsg> | null;
+    if (
+      f?.type === 'stale-feed' &&
+      typeof f.underlying === 'string' &&
+      (f.state === 'raised' || f.state === 'cleared')
+    )
+      feeds.set(f.underlying, f.state);
   }
-  return latest;
+  return { limits: latest, feeds };
 }
 
 /** Applies records to an engine while rebuilding: state only, every output dropped. */
@@ -372,7 +387,7 @@ export async function runKafkaPipeline(opts: {
       let engine = newEngine();
       let runner = runnerFor(engine);
       let owned = 0;
-      let published: Promise<Map<string, AlertMsg>> = Promise.resolve(new Map());
+      let published: Promise<LastTold> = Promise.resolve({ limits: new Map(), feeds: new Map() });
       snapshot = () => engine.snapshot();
       openAlerts = () => engine.openAlerts();
       metrics.bindEngine(engine);
@@ -409,11 +424,15 @@ export async function runKafkaPipeline(opts: {
             }
           },
           beforeLive: async () => {
-            const restored = restoreLimitLevels(engine, (await published).values());
+            const told = await published;
+            const restored = restoreLimitLevels(engine, told.limits.values());
             log.info({ limits: restored.length }, 'limit levels continue from the alerts topic');
+            const gaps = engine.reconcileFeeds(told.feeds);
+            if (gaps.length) log.info({ feeds: gaps.length }, 'feed states that changed while down');
             let total = 0;
             for (const t of [...TABLE_TOPICS, ...KEYED_TOPICS]) total += await bus.partitionCount(t);
             await runner.publishSnapshot();
+            await runner.handle([]); // the feed announcements, if any
             runner.recordLatency = true;
             if (owned < total) {
               checks.stateRebuilt = {
@@ -432,6 +451,7 @@ export async function runKafkaPipeline(opts: {
     } else if (a.role === 'engine') {
       const tables = new TableStore();
       const engines = new Map<number, { pe: PartitionEngine; runner: EngineRunner }>();
+      let told: Promise<LastTold> = Promise.resolve({ limits: new Map(), feeds: new Map() });
       let live = false;
       let tablesLive!: () => void;
       const tablesReady = new Promise<void>((r) => (tablesLive = r));
@@ -495,6 +515,8 @@ export async function runKafkaPipeline(opts: {
             for (const { runner } of engines.values())
               void runner.stop().catch((err: unknown) => onError(err, 'stopping the previous generation'));
             engines.clear();
+            told = latestAlerts(bus);
+            told.catch(() => undefined);
             const parts = new Set(e.assignment.flatMap((x) => x.partitions));
             for (const p of parts) {
               const pe = new PartitionEngine(newEngine(), p, owns(p));
@@ -517,9 +539,13 @@ export async function runKafkaPipeline(opts: {
           },
           beforeLive: async () => {
             await tablesReady;
+            const { feeds } = await told;
             await Promise.all(
-              [...engines.values()].map(async ({ runner }) => {
+              [...engines.values()].map(async ({ pe, runner }) => {
+                // each partition's engine announces only the feeds it owns (PartitionEngine.drain)
+                pe.engine.reconcileFeeds(feeds);
                 await runner.publishSnapshot();
+                await runner.handle([]);
                 runner.recordLatency = true;
               }),
             );
@@ -535,7 +561,7 @@ export async function runKafkaPipeline(opts: {
       );
     } else {
       let agg = new PartialsAggregator();
-      let published: Promise<Map<string, AlertMsg>> = Promise.resolve(new Map());
+      let published: Promise<LastTold> = Promise.resolve({ limits: new Map(), feeds: new Map() });
       const limitRows = new TableStore();
       let live = false;
       let limitsLive!: () => void;
@@ -607,7 +633,7 @@ export async function runKafkaPipeline(opts: {
           beforeLive: async () => {
             await limitsReady;
             // Limits that arrived while rebuilding were applied then; the published levels win.
-            const restored = agg.restoreLevels((await published).values());
+            const restored = agg.restoreLevels((await published).limits.values());
             log.info({ limits: restored.length }, 'limit levels continue from the alerts topic');
             agg.touchAll();
             live = true;
