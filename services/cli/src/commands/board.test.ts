@@ -182,6 +182,9 @@ describe('keelson board arguments', () => {
       const b = io();
       expect(await run(['--brokers', 'x:1', '--port=-3'], b.io)).toBe(1);
       expect(b.err()).toContain("--port must be an integer >= 0, got '-3'");
+      const d = io();
+      expect(await run(['--brokers', 'x:1', '--recent-alerts', '2.5'], d.io)).toBe(1);
+      expect(d.err()).toContain("--recent-alerts must be an integer > 0, got '2.5'");
       const c = io();
       expect(await run(['--help'], c.io)).toBe(0);
       expect(c.out()).toContain('usage: keelson board');

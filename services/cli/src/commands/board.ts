@@ -22,6 +22,7 @@ import {
   type LimitMsg,
 } from '@keelson/shared-types';
 import type { CommandIo } from '../main.ts';
+import { numberOption, type NumberRule } from '../options.ts';
 
 const HELP = `usage: keelson board [options]
 
@@ -43,8 +44,6 @@ options:
   --log-level LEVEL     fatal, error, warn, info, debug, trace (default info)
   -h, --help
 `;
-
-class UsageError extends Error {}
 
 /** The contract's utilization rule: value / max for value >= 0 with a max, value / min below 0 with a min. */
 export function utilizationOf(value: number, max: number | undefined, min: number | undefined): number {
@@ -224,31 +223,21 @@ function parse(argv: string[]) {
     strict: true,
     allowPositionals: false,
   });
-  const num = (
-    name: string,
-    raw: string | undefined,
-    fallback: number,
-    { zero = false, integer = false } = {},
-  ): number => {
-    if (raw === undefined) return fallback;
-    const n = Number(raw);
-    if (!Number.isFinite(n) || (zero ? n < 0 : n <= 0) || (integer && !Number.isInteger(n))) {
-      throw new UsageError(
-        `--${name} must be ${integer ? 'an integer' : 'a number'} ${zero ? '>= 0' : '> 0'}, got '${raw}'`,
-      );
-    }
-    return n;
-  };
+  const num = (name: string, raw: string | undefined, fallback: number, rule: NumberRule): number =>
+    numberOption(name, raw, rule) ?? fallback;
   return {
     help: values.help === true,
     brokers: values.brokers ?? process.env.KAFKA_BROKERS,
-    port: num('port', values.port, 9410, { zero: true, integer: true }),
+    port: num('port', values.port, 9410, { min: 0, integer: true }),
     host: values.host ?? '127.0.0.1',
     token: values.token ?? process.env.KEELSON_HTTP_TOKEN,
     groupId: values['group-id'] ?? `keelson-board-${hostname()}-${process.pid}`,
     topicPrefix: values['topic-prefix'],
-    recentAlerts: num('recent-alerts', values['recent-alerts'], 500, { integer: true }),
-    durationMs: values.duration === undefined ? undefined : num('duration', values.duration, 0) * 1000,
+    recentAlerts: num('recent-alerts', values['recent-alerts'], 500, { min: 0, strict: true, integer: true }),
+    durationMs:
+      values.duration === undefined
+        ? undefined
+        : num('duration', values.duration, 0, { min: 0, strict: true }) * 1000,
     logLevel: values['log-level'] ?? 'info',
   };
 }

@@ -34,6 +34,11 @@ function numOpt(name: string, raw: string | undefined, min: number): number | un
   return numberOption(name, raw, { min });
 }
 
+/** Counts and seeds: a fractional value would be silently truncated somewhere downstream. */
+function intOpt(name: string, raw: string | undefined, min: number): number | undefined {
+  return numberOption(name, raw, { min, integer: true });
+}
+
 export async function run(argv: string[], io: CommandIo): Promise<number> {
   let values;
   try {
@@ -76,12 +81,12 @@ export async function run(argv: string[], io: CommandIo): Promise<number> {
   let bus;
   let seed, underlyings, trades, speed, stepMs, duration, port;
   try {
-    port = numOpt('port', values.port, 0);
-    if (port !== undefined && (!Number.isInteger(port) || port > 65535))
+    port = intOpt('port', values.port, 0);
+    if (port !== undefined && port > 65535)
       throw new Error(`--port must be an integer in 0..65535, got '${values.port}'`);
-    seed = numOpt('seed', values.seed, 0) ?? 1;
-    underlyings = numOpt('underlyings', values.underlyings, 1);
-    trades = numOpt('trades', values.trades, 0);
+    seed = intOpt('seed', values.seed, 0) ?? 1;
+    underlyings = intOpt('underlyings', values.underlyings, 1);
+    trades = intOpt('trades', values.trades, 0);
     speed = numOpt('speed', values.speed, 0) ?? 1;
     stepMs = numOpt('step-ms', values['step-ms'], 1) ?? 100;
     duration = numOpt('duration', values.duration, 0);
