@@ -407,13 +407,16 @@ export async function runKafkaPipeline(opts: {
           rebuild: true,
           onPhase: (e) => {
             if (e.phase === 'restoring') {
-              void runner.stop().catch((err: unknown) => onError(err, 'stopping the previous generation'));
+              // The previous generation's last flush may still carry alerts: the topic is read
+              // after it is acknowledged (while the partitions rebuild; awaited before going live).
+              const stopped = runner
+                .stop()
+                .catch((err: unknown) => onError(err, 'stopping the previous generation'));
               engine = newEngine();
               runner = runnerFor(engine);
               metrics.bindEngine(engine);
               owned = e.assignment.reduce((n, x) => n + x.partitions.length, 0);
-              // Read while the partitions rebuild; awaited before going live.
-              published = latestAlerts(bus);
+              published = stopped.then(() => latestAlerts(bus));
               published.catch(() => undefined);
               checks.stateRebuilt = { ok: false, detail: `rebuilding ${owned} partitions from the topics` };
               metrics.setReady(false);
@@ -451,7 +454,7 @@ export async function runKafkaPipeline(opts: {
     } else if (a.role === 'engine') {
       const tables = new TableStore();
       const engines = new Map<number, { pe: PartitionEngine; runner: EngineRunner }>();
-      let told: Promise<LastTold> = Promise.resolve({ limits: new Map(), feeds: new Map() });
+      let previous: Promise<unknown> = Promise.resolve();
       let live = false;
       let tablesLive!: () => void;
       const tablesReady = new Promise<void>((r) => (tablesLive = r));
@@ -512,11 +515,12 @@ export async function runKafkaPipeline(opts: {
           onPhase: (e) => {
             if (e.phase !== 'restoring') return;
             live = false;
-            for (const { runner } of engines.values())
-              void runner.stop().catch((err: unknown) => onError(err, 'stopping the previous generation'));
+            previous = Promise.all(
+              [...engines.values()].map(({ runner }) =>
+                runner.stop().catch((err: unknown) => onError(err, 'stopping the previous generation')),
+              ),
+            );
             engines.clear();
-            told = latestAlerts(bus);
-            told.catch(() => undefined);
             const parts = new Set(e.assignment.flatMap((x) => x.partitions));
             for (const p of parts) {
               const pe = new PartitionEngine(newEngine(), p, owns(p));
@@ -539,7 +543,11 @@ export async function runKafkaPipeline(opts: {
           },
           beforeLive: async () => {
             await tablesReady;
-            const { feeds } = await told;
+            // Read last, after this process's previous generation has flushed: what another
+            // instance that owned these partitions said before the rebalance is on the topic by
+            // now, short of a flush still in flight there.
+            await previous;
+            const { feeds } = await latestAlerts(bus);
             await Promise.all(
               [...engines.values()].map(async ({ pe, runner }) => {
                 // each partition's engine announces only the feeds it owns (PartitionEngine.drain)
