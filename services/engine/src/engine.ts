@@ -395,19 +395,8 @@ export class RiskEngine {
   reconcileFeeds(published: ReadonlyMap<string, 'raised' | 'cleared'>): StaleFeedMsg[] {
     const t = this.clock ? Math.max(this.valuationMs, this.clock.now()) : this.eventMs;
     const out: StaleFeedMsg[] = [];
-    for (const u of this.undList) {
-      if (!u.hasSpot || u.stale === (published.get(u.name) === 'raised')) continue;
-      const e: StaleFeedMsg = {
-        type: 'stale-feed',
-        underlying: u.name,
-        state: u.stale ? 'raised' : 'cleared',
-        lastTick: formatTs(u.lastTickMs),
-        ts: formatTs(t),
-      };
-      this.outAlerts.push(e);
-      this.observer?.staleFeed?.(e);
-      out.push(e);
-    }
+    for (const u of this.undList)
+      if (u.hasSpot && u.stale !== (published.get(u.name) === 'raised')) out.push(this.announceFeed(u, t));
     return out;
   }
 
@@ -807,18 +796,24 @@ export class RiskEngine {
 
   private feedEvent(u: Underlying, stale: boolean, t: number, refresh = true): void {
     u.stale = stale;
+    this.announceFeed(u, t);
+    // the stale flag of the nodes its priced positions sit in (no revaluation)
+    if (refresh)
+      for (const i of u.instruments) for (const h of this.instHoldings[i] as Holding[]) this.updateHolding(h);
+  }
+
+  /** Queues the stale-feed event that states the feed's current flag. */
+  private announceFeed(u: Underlying, t: number): StaleFeedMsg {
     const e: StaleFeedMsg = {
       type: 'stale-feed',
       underlying: u.name,
-      state: stale ? 'raised' : 'cleared',
+      state: u.stale ? 'raised' : 'cleared',
       lastTick: formatTs(u.lastTickMs),
       ts: formatTs(t),
     };
     this.outAlerts.push(e);
     this.observer?.staleFeed?.(e);
-    // the stale flag of the nodes its priced positions sit in (no revaluation)
-    if (refresh)
-      for (const i of u.instruments) for (const h of this.instHoldings[i] as Holding[]) this.updateHolding(h);
+    return e;
   }
 
   // ------------------------------------------------------------------ revaluation
