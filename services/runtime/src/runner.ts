@@ -361,6 +361,12 @@ export class EngineRunner {
     for (const r of out.rejected) this.queuedRejected.push(r);
   }
 
+  /** A failed flush: its acknowledgements are the retry's, one interval from now (or the next batch's flush). */
+  private retryLater(waiters: (() => void)[]): void {
+    this.flushWaiters = waiters.concat(this.flushWaiters);
+    this.armFlushTimer();
+  }
+
   private armFlushTimer(): void {
     if (this.flushTimer || this.stopped) return;
     const wait = Math.max(0, this.lastFlushAt + this.interval - this.now());
@@ -422,8 +428,7 @@ export class EngineRunner {
     try {
       await this.publishQueuedEvents();
     } catch (err) {
-      this.flushWaiters = waiters.concat(this.flushWaiters);
-      this.armFlushTimer();
+      this.retryLater(waiters);
       throw err;
     }
     if (this.pending.size === 0) {
@@ -458,9 +463,7 @@ export class EngineRunner {
         if (!this.pending.has(key)) this.pending.set(key, e);
       }
       this.pendingTicks = ticks.concat(this.pendingTicks);
-      // Their acknowledgement is the retry's, one interval from now (or the next batch's flush).
-      this.flushWaiters = waiters.concat(this.flushWaiters);
-      this.armFlushTimer();
+      this.retryLater(waiters);
       throw err;
     }
     const wall = this.now();
