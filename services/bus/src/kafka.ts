@@ -17,7 +17,7 @@ import type {
 } from 'kafkajs';
 import type { Bus, BusRecord, OutRecord } from './bus.ts';
 import { describeKafkaConfig, KafkaConfigError, resolveConnection } from './kafka-config.ts';
-import { javaPartition } from './kafka-partition.ts';
+import { javaPartition, memoizedJavaPartitioner } from './kafka-partition.ts';
 import type { KafkaConnection, KafkaSasl } from './kafka-config.ts';
 
 const { Kafka, Partitioners, logLevel, CompressionTypes } = kafkajs;
@@ -833,7 +833,7 @@ export class KafkaBus implements Bus {
       const producer = this.kafka.producer({
         // The Java client's murmur2 partitioner, named explicitly: a key lands on the same
         // partition whichever client (ours, or an upstream in another language) produced it.
-        createPartitioner: Partitioners.DefaultPartitioner,
+        createPartitioner: memoizedJavaPartitioner(Partitioners.DefaultPartitioner),
         idempotent: true,
         maxInFlightRequests: positiveInt('maxInFlightRequests', this.opts.maxInFlightRequests, 1, 1, 5),
         allowAutoTopicCreation: false,
