@@ -18,9 +18,19 @@ import type {
 import type { Bus, BusRecord, OutRecord } from './bus.ts';
 import { describeKafkaConfig, KafkaConfigError, resolveConnection } from './kafka-config.ts';
 import { javaPartition, memoizedJavaPartitioner } from './kafka-partition.ts';
+import { installProduceEncoder } from './kafka-produce-encoder.ts';
 import type { KafkaConnection, KafkaSasl } from './kafka-config.ts';
 
 const { Kafka, Partitioners, logLevel, CompressionTypes } = kafkajs;
+
+// Before any producer of this process builds a request (kafka-produce-encoder.ts says why);
+// KEELSON_PRODUCE_ENCODER=kafkajs keeps kafkajs's own encoder.
+const produceEncoder =
+  process.env.KEELSON_PRODUCE_ENCODER === 'kafkajs'
+    ? 'kafkajs'
+    : installProduceEncoder()
+      ? 'keelson'
+      : 'kafkajs';
 
 /** The pino-shaped subset the transport logs through (pino's own logger fits). */
 export interface KafkaBusLogger {
@@ -294,7 +304,12 @@ export class KafkaBus implements Bus {
         },
     });
     logger?.info(
-      { kafka: describeKafkaConfig(this.connection), topicPrefix: this.topicPrefix, groupId: this.groupId },
+      {
+        kafka: describeKafkaConfig(this.connection),
+        topicPrefix: this.topicPrefix,
+        groupId: this.groupId,
+        produceEncoder,
+      },
       'kafka bus configured',
     );
   }
