@@ -858,3 +858,69 @@ describe('observer and stats', () => {
     ]);
   });
 });
+
+describe('a run of spots applied as one move (ingestSpots)', () => {
+  // A firm that is long one ACME share and short one BRIO share, both at 100: flat, pv 0. Both
+  // rise 10%. One tick at a time, the firm is +10 between the two ticks; as one move it stays 0.
+  function flatFirm(): RiskEngine {
+    const e = engine();
+    feed(e, [
+      underlying('ACME'),
+      underlying('BRIO'),
+      spot('ACME', 100),
+      spot('BRIO', 100),
+      trade({ id: 'LONG', linear: true, quantity: 1 }),
+      trade({ id: 'SHORT', underlying: 'BRIO', linear: true, quantity: -1 }),
+      limit({ limitId: 'L-FIRM', scope: {}, metric: 'pv', max: 5 }),
+    ]);
+    e.drain();
+    return e;
+  }
+  const move = [spot('ACME', 110, T0 + 1000), spot('BRIO', 110, T0 + 1000)].map((m, i) => ({
+    raw: JSON.stringify(m),
+    source: `spots partition 0 offset ${i}`,
+  }));
+
+  it('checks limits after the run, not in the part-moved state between its ticks', () => {
+    const oneByOne = flatFirm();
+    for (const m of move) oneByOne.ingest(m.raw, m.source);
+    // per tick: raised when ACME has moved and BRIO not yet, cleared when BRIO follows
+    expect(oneByOne.drain().alerts.map((a) => (a as AlertMsg).state)).toEqual(['raised', 'cleared']);
+
+    const grouped = flatFirm();
+    expect(grouped.ingestSpots(move)).toEqual(['accepted', 'accepted']);
+    const out = grouped.drain();
+    expect(out.alerts).toEqual([]);
+    const firm = out.exposures.find((x) => x.nodeKey === 'firm');
+    expect(firm?.pv).toBeCloseTo(0, 12);
+    // the same end state as one by one
+    expect(grouped.snapshot()).toEqual(oneByOne.snapshot());
+  });
+
+  it('raises a breach that the end of the run shows, once, valued at the run', () => {
+    const e = flatFirm();
+    e.ingestSpots([move[0]!, { raw: JSON.stringify(spot('BRIO', 100, T0 + 1000)), source: 's' }]);
+    expect(e.drain().alerts).toEqual([
+      expect.objectContaining({ limitId: 'L-FIRM', state: 'raised', severity: 'breach', value: 10 }),
+    ]);
+  });
+
+  it('rejects a bad record inside the run and applies a non-spot on its own, in order', () => {
+    const e = flatFirm();
+    const outcomes = e.ingestSpots([
+      move[0]!,
+      { raw: '{"type":"spot","underlying":"BRIO"}', source: 'spots partition 0 offset 7' },
+      {
+        raw: JSON.stringify(limit({ limitId: 'L-FIRM', scope: {}, metric: 'pv', max: 50 }, T0 + 1000)),
+        source: 'l',
+      },
+      move[1]!,
+    ]);
+    expect(outcomes).toEqual(['accepted', 'rejected', 'accepted', 'accepted']);
+    const out = e.drain();
+    expect(out.rejected.map((r) => r.source)).toEqual(['spots partition 0 offset 7']);
+    // ACME alone moved the firm to +10 (a breach of max 5), checked when the limit input ended the
+    // run; the new max of 50 is checked at once (10 is a fifth of it): the episode clears
+    expect(out.alerts.map((a) => (a as AlertMsg).state)).toEqual(['raised', 'cleared']);
+  });
+});

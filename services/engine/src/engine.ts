@@ -236,6 +236,8 @@ export class RiskEngine {
   private eventMs = 0;
   private valuationMs = 0;
   private seq = 0;
+  /** Dirty marks: per input, and per spot within a run (an instrument repriced for one spot of the run may be moved again by the next). */
+  private markSeq = 0;
 
   private readonly unds = new Map<string, Underlying>();
   private readonly undList: Underlying[] = [];
@@ -310,6 +312,44 @@ export class RiskEngine {
 
   apply(msg: InputMsg, source: string): Outcome {
     return this.process(msg, source, undefined);
+  }
+
+  /**
+   * A run of spot records (in bus order, already conflated) applied as one market move: each is
+   * decoded, validated and applied in turn, then the nodes they changed are updated, published
+   * and checked against their limits once, after the last. A limit is therefore not checked
+   * against the part-moved states inside the run (one underlying moved, the next not yet), which
+   * are artefacts of applying ticks one at a time rather than states of the market; the state
+   * after the run is the one per-record ingestion reaches. Anything that is not a spot ends the
+   * run and is processed on its own, as by ingest().
+   */
+  ingestSpots(items: readonly { raw: string; source: string }[]): Outcome[] {
+    const out = new Array<Outcome>(items.length);
+    let open = false;
+    for (let k = 0; k < items.length; k++) {
+      const { raw, source } = items[k] as { raw: string; source: string };
+      const d = decodeInput(raw);
+      if (!d.ok) {
+        this.reject(d.reason, source, raw);
+        this.observer?.input?.(typeOfRaw(raw), 'rejected');
+        out[k] = 'rejected';
+        continue;
+      }
+      if (d.msg.type !== 'spot') {
+        if (open) this.finish();
+        open = false;
+        out[k] = this.process(d.msg, source, raw);
+        continue;
+      }
+      if (open) this.advance(msOf(d.msg.ts));
+      else this.begin(msOf(d.msg.ts));
+      open = true;
+      const outcome = this.onSpot(d.msg);
+      this.observer?.input?.('spot', outcome);
+      out[k] = outcome;
+    }
+    if (open) this.finish();
+    return out;
   }
 
   revalueAll(): void {
@@ -537,10 +577,20 @@ export class RiskEngine {
     }
     this.valuationMs = t;
     this.seq += 1;
+    this.markSeq += 1;
     this.checkNodes.length = 0;
     this.inputAlerts = [];
     this.inputRevaluations = 0;
     this.inputChangedNodes = 0;
+    this.sweepStale(t);
+  }
+  /** The next input of a run (ingestSpots): time moves on, the run's changes keep accumulating. */
+  private advance(tsMs: number): void {
+    const t = this.clock
+      ? Math.max(this.valuationMs, this.clock.now())
+      : (this.eventMs = Math.max(this.eventMs, tsMs));
+    this.valuationMs = t;
+    this.markSeq += 1;
     this.sweepStale(t);
   }
 
@@ -819,8 +869,8 @@ export class RiskEngine {
   // ------------------------------------------------------------------ revaluation
 
   private markDirty(i: number): void {
-    if (this.inst.dirtySeq[i] === this.seq) return;
-    this.inst.dirtySeq[i] = this.seq;
+    if (this.inst.dirtySeq[i] === this.markSeq) return;
+    this.inst.dirtySeq[i] = this.markSeq;
     this.dirty.push(i);
   }
 

@@ -254,6 +254,55 @@ describe('EngineRunner', () => {
     await bus.close();
   });
 
+  it('hands consecutive spots to ingestSpots as one run; other inputs end the run and go alone', async () => {
+    const bus = new MemoryBus();
+    const runs: number[] = [];
+    const engine = new FakeEngine();
+    const grouped = Object.assign(engine, {
+      ingestSpots(items: readonly { raw: string; source: string }[]) {
+        runs.push(items.length);
+        return items.map((x) => engine.ingest(x.raw, x.source));
+      },
+    });
+    const runner = new EngineRunner({ engine: grouped, bus, publishIntervalMs: 0 });
+    await runner.handle([
+      { topic: 'spots', ...spot('AX', 1, 1000) },
+      { topic: 'spots', ...spot('BX', 1, 1000) },
+      { topic: 'trades', key: 'AX', value: '{"type":"trade-ish"}' },
+      { topic: 'spots', ...spot('CX', 1, 1000) },
+      { topic: 'spots', ...spot('AX', 2, 1001) },
+      { topic: 'spots', ...spot('DX', 2, 1001) },
+    ]);
+    expect(runs).toEqual([2, 3]);
+    expect(runner.stats()).toMatchObject({ accepted: 6, spots: 5 });
+    await bus.close();
+  });
+
+  it('when a run throws, applies its spots one by one and dead-letters only the faulty one', async () => {
+    const bus = new MemoryBus();
+    const out = collect(bus, ['rejected']);
+    const engine = new FakeEngine();
+    const grouped = Object.assign(engine, {
+      ingestSpots(): never {
+        throw new Error('kaboom in a run');
+      },
+    });
+    const runner = new EngineRunner({ engine: grouped, bus, publishIntervalMs: 0, onError: () => undefined });
+    const boom = {
+      key: 'BX',
+      value: JSON.stringify({ type: 'spot', underlying: 'BX', boom: true, ts: '2026-03-02T14:30:00Z' }),
+    };
+    await runner.handle([
+      { topic: 'spots', ...spot('AX', 1, 1000) },
+      { topic: 'spots', partition: 0, offset: '8', ...boom },
+      { topic: 'spots', ...spot('CX', 1, 1000) },
+    ]);
+    await bus.idle();
+    expect(out.map((r) => JSON.parse(r.value).source)).toEqual(['spots partition 0 offset 8']);
+    expect(runner.stats()).toMatchObject({ accepted: 2, rejected: 1, internalErrors: 1 });
+    await bus.close();
+  });
+
   it('handleUntilAcked returns at once, and its acknowledgement waits for the flush that carries it', async () => {
     let now = 0;
     const bus = new MemoryBus();

@@ -17,6 +17,7 @@ import { INPUT_TOPICS, TOPICS } from '@keelson/shared-types';
 import type { AlertMsg, ExposureMsg, RejectedMsg, StaleFeedMsg } from '@keelson/shared-types';
 import type { Bus, BusRecord, OutRecord } from '@keelson/bus';
 import { planBatch } from './conflate.ts';
+import type { PlannedRecord } from './conflate.ts';
 import { LatencyWindow } from './latency.ts';
 
 export type Signal = AlertMsg | StaleFeedMsg;
@@ -34,6 +35,8 @@ export interface ExposureSource {
 /** The part of RiskEngine the runner drives (structural, so tests can hand in a fake). */
 export interface RunnerEngine {
   ingest(raw: string, source: string): IngestOutcome;
+  /** Optional, preferred when present: a run of spots applied as one move (RiskEngine.ingestSpots). */
+  ingestSpots?(items: readonly { raw: string; source: string }[]): IngestOutcome[];
   revalueAll(): void;
   drain(): { exposures: ExposureMsg[]; alerts: Signal[]; rejected: RejectedMsg[] };
   /**
@@ -255,16 +258,15 @@ export class EngineRunner {
     this.counters.conflated += plan.conflated;
     // Ingest and drain without an await in between: the decay timer cannot interleave.
     const internal: RejectedMsg[] = [];
-    for (const p of plan.records) {
+    const counted = (outcome: IngestOutcome, p: PlannedRecord) => {
+      if (outcome === 'accepted') this.counters.accepted++;
+      else if (outcome === 'duplicate') this.counters.duplicates++;
+      else this.counters.rejected++;
+      if (outcome === 'accepted' && p.spot)
+        ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: p.record.timestamp });
+    };
+    const one = (p: PlannedRecord) => {
       const r = p.record;
-      if (p.spot) this.counters.spots++;
-      if (!p.apply) {
-        this.counters.accepted++;
-        this.opts.observer?.input?.('spot', 'accepted');
-        if (p.spot)
-          ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: r.timestamp });
-        continue;
-      }
       let outcome: IngestOutcome;
       try {
         outcome = this.engine.ingest(r.value, originOf(r));
@@ -281,12 +283,48 @@ export class EngineRunner {
         });
         outcome = 'rejected';
       }
-      if (outcome === 'accepted') this.counters.accepted++;
-      else if (outcome === 'duplicate') this.counters.duplicates++;
-      else this.counters.rejected++;
-      if (outcome === 'accepted' && p.spot)
-        ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: r.timestamp });
+      counted(outcome, p);
+    };
+    // Consecutive spots go to the engine as one run when it can take one (see ingestSpots).
+    const run: PlannedRecord[] = [];
+    const endRun = () => {
+      if (run.length === 0) return;
+      const grouped = this.engine.ingestSpots;
+      if (run.length === 1 || !grouped) for (const p of run) one(p);
+      else {
+        let outcomes: IngestOutcome[] | undefined;
+        try {
+          outcomes = grouped.call(
+            this.engine,
+            run.map((p) => ({ raw: p.record.value, source: originOf(p.record) })),
+          );
+        } catch {
+          // Which record failed is unknown: apply them one by one, so that only the faulty one is
+          // dead-lettered (the ones already applied are the same spots again: no change).
+        }
+        if (outcomes)
+          for (let k = 0; k < run.length; k++) counted(outcomes[k] as IngestOutcome, run[k] as PlannedRecord);
+        else for (const p of run) one(p);
+      }
+      run.length = 0;
+    };
+    for (const p of plan.records) {
+      if (p.spot) this.counters.spots++;
+      if (!p.apply) {
+        this.counters.accepted++;
+        this.opts.observer?.input?.('spot', 'accepted');
+        if (p.spot)
+          ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: p.record.timestamp });
+        continue;
+      }
+      if (p.spot) {
+        run.push(p);
+        continue;
+      }
+      endRun();
+      one(p);
     }
+    endRun();
     const out = this.drainEngine();
     this.opts.metrics?.batchProcessed((performance.now() - t0) / 1000);
     if (internal.length) out.rejected = [...out.rejected, ...internal];
