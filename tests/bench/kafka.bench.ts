@@ -249,7 +249,8 @@ for (let s = 0; s < steps; s++) {
 await new Promise((r) => setTimeout(r, 2000));
 measuring = false;
 for (const xs of [lat, toValued, valuedToRead]) xs.sort((a, b) => a - b);
-const pctOf = (xs: number[], p: number) => xs[Math.min(xs.length - 1, Math.floor((p / 100) * xs.length))] ?? Number.NaN;
+const pctOf = (xs: number[], p: number) =>
+  xs[Math.min(xs.length - 1, Math.floor((p / 100) * xs.length))] ?? Number.NaN;
 const pct = (p: number) => pctOf(lat, p);
 
 console.log(
