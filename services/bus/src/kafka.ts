@@ -17,7 +17,7 @@ import type {
 } from 'kafkajs';
 import type { Bus, BusRecord, OutRecord } from './bus.ts';
 import { describeKafkaConfig, KafkaConfigError, resolveConnection } from './kafka-config.ts';
-import { javaPartition, memoizedJavaPartitioner } from './kafka-partition.ts';
+import { javaKeyHash, javaPartition, memoizedJavaPartitioner } from './kafka-partition.ts';
 import { installProduceEncoder } from './kafka-produce-encoder.ts';
 import type { KafkaConnection, KafkaSasl } from './kafka-config.ts';
 
@@ -212,27 +212,48 @@ function toLogLevel(level: number): 'debug' | 'info' | 'warn' | 'error' {
 }
 
 /**
- * Bytes of key and value per produce request. kafkajs puts all of a request's records for one
- * partition in one record batch, and the broker refuses a batch over message.max.bytes (1 MiB by
- * default, Kafka broker configuration docs): a simulator bootstrap of thousands of trades exceeded it.
+ * Bytes of key and value per partition in one produce request. kafkajs puts all of a request's
+ * records for one partition in one record batch, and the broker refuses a batch over
+ * message.max.bytes (1 MiB by default, Kafka broker configuration docs): a simulator bootstrap of
+ * thousands of trades exceeded it.
  */
 export const MAX_REQUEST_BYTES = 512 * 1024;
 
-/** Records cut into consecutive runs of at most MAX_REQUEST_BYTES (a larger single record alone). */
-export function requestSized<R extends OutRecord>(records: R[], maxBytes = MAX_REQUEST_BYTES): R[][] {
+/**
+ * Records cut into consecutive runs in which no partition's batch exceeds maxBytes (a larger
+ * single record alone). `partitionOf` gives a keyed record's partition; without it, or for a
+ * record without a key (kafkajs spreads those), the record counts against every partition. One
+ * request per flush matters: the runs are sent one after the other, each waiting for the broker.
+ */
+export function requestSized<R extends OutRecord>(
+  records: R[],
+  maxBytes = MAX_REQUEST_BYTES,
+  partitionOf?: (key: string) => number,
+): R[][] {
   const out: R[][] = [];
   let run: R[] = [];
-  let bytes = 0;
+  const perPartition = new Map<number, number>();
+  let fullest = 0; // the largest per-partition total of the run
+  let everywhere = 0; // bytes that count against every partition
   for (const r of records) {
     // UTF-16 length x 3 bounds the UTF-8 length without encoding; plus kafkajs's per-record overhead.
     const size = (r.value.length + (r.key?.length ?? 0)) * 3 + 64;
-    if (run.length && bytes + size > maxBytes) {
+    const p = r.key !== null && partitionOf ? partitionOf(r.key) : -1;
+    const before = p < 0 ? fullest : (perPartition.get(p) ?? 0);
+    if (run.length && before + everywhere + size > maxBytes) {
       out.push(run);
       run = [];
-      bytes = 0;
+      perPartition.clear();
+      fullest = 0;
+      everywhere = 0;
     }
     run.push(r);
-    bytes += size;
+    if (p < 0) everywhere += size;
+    else {
+      const now = (perPartition.get(p) ?? 0) + size;
+      perPartition.set(p, now);
+      if (now > fullest) fullest = now;
+    }
   }
   if (run.length) out.push(run);
   return out;
@@ -332,9 +353,11 @@ export class KafkaBus implements Bus {
   async publish(topic: string, records: OutRecord[]): Promise<void> {
     if (records.length === 0) return;
     const producer = await this.connectProducer();
+    const n = this.knownPartitions(topic);
+    const partitionOf = n > 0 ? (key: string) => javaKeyHash(key) % n : undefined;
     try {
       // In order, one request at a time: the idempotent producer keeps the order within a partition.
-      for (const part of requestSized(records)) {
+      for (const part of requestSized(records, MAX_REQUEST_BYTES, partitionOf)) {
         await producer.send({
           topic: this.physical(topic),
           acks: -1,
@@ -729,6 +752,23 @@ export class KafkaBus implements Bus {
     return n;
   }
   private readonly partitionCounts = new Map<string, number>();
+  private readonly partitionLookups = new Set<string>();
+
+  /**
+   * The partition count if known, else 0 and a lookup in the background. It only sizes requests
+   * (kafkajs partitions with its own metadata), so a publish never waits for it: until it is
+   * known, every record counts against every partition.
+   */
+  private knownPartitions(topic: string): number {
+    const n = this.partitionCounts.get(topic);
+    if (n === undefined && !this.partitionLookups.has(topic) && !this.closed) {
+      this.partitionLookups.add(topic);
+      void this.partitionCount(topic)
+        .catch(() => undefined)
+        .finally(() => this.partitionLookups.delete(topic));
+    }
+    return n ?? 0;
+  }
 
   /**
    * Publishes records whose partition is chosen by another key than the record key (partials:
