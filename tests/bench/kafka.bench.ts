@@ -202,11 +202,13 @@ const reader = new KafkaBus({
 });
 const pending = new Map<string, number[]>(); // underlying -> publish times of ticks not yet seen valued
 const lat: number[] = [];
-// The same latency in two parts: tick to valuation (the node's asOf, the wall clock when the engine
-// valued it: waiting for the flush, then applying), and valuation to arrival at the reader
-// (serialising, producing, the broker, the reader's fetch).
+// The same latency in three parts: tick to valuation (the node's asOf, the wall clock when the
+// engine valued it: waiting for the flush, then applying), valuation to produce (the record's
+// timestamp, stamped when its produce request was built: the rest of the flush's revaluation,
+// serialising), and produce to arrival at the reader (the request, the broker, the reader's fetch).
 const toValued: number[] = [];
-const valuedToRead: number[] = [];
+const valuedToProduced: number[] = [];
+const producedToRead: number[] = [];
 let measuring = false;
 await reader.subscribe(['exposures'], async (batch) => {
   const now = Date.now();
@@ -222,7 +224,8 @@ await reader.subscribe(['exposures'], async (batch) => {
       const at = q.shift()!;
       lat.push(now - at);
       toValued.push(asOf - at);
-      valuedToRead.push(now - asOf);
+      valuedToProduced.push(r.timestamp! - asOf);
+      producedToRead.push(now - r.timestamp!);
     }
   }
 });
@@ -248,7 +251,7 @@ for (let s = 0; s < steps; s++) {
 }
 await new Promise((r) => setTimeout(r, 2000));
 measuring = false;
-for (const xs of [lat, toValued, valuedToRead]) xs.sort((a, b) => a - b);
+for (const xs of [lat, toValued, valuedToProduced, producedToRead]) xs.sort((a, b) => a - b);
 const pctOf = (xs: number[], p: number) =>
   xs[Math.min(xs.length - 1, Math.floor((p / 100) * xs.length))] ?? Number.NaN;
 const pct = (p: number) => pctOf(lat, p);
@@ -268,7 +271,7 @@ console.log(
   `tick-to-exposure at ${RATE} ticks/s for ${LATENCY_SECONDS}s: p50 ${pct(50)} ms, p99 ${pct(99)} ms, max ${lat.at(-1)} ms over ${lat.length} ticks (publish interval ${PUBLISH_MS} ms)`,
 );
 console.log(
-  `  of which tick to valuation p50 ${pctOf(toValued, 50)} ms, p99 ${pctOf(toValued, 99)} ms; valuation to reader p50 ${pctOf(valuedToRead, 50)} ms, p99 ${pctOf(valuedToRead, 99)} ms`,
+  `  of which tick to valuation p50 ${pctOf(toValued, 50)} / p99 ${pctOf(toValued, 99)} ms, valuation to produce ${pctOf(valuedToProduced, 50)} / ${pctOf(valuedToProduced, 99)} ms, produce to reader ${pctOf(producedToRead, 50)} / ${pctOf(producedToRead, 99)} ms`,
 );
 
 await engine.stop();
