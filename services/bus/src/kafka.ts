@@ -761,7 +761,11 @@ export class KafkaBus implements Bus {
    */
   private knownPartitions(topic: string): number {
     const n = this.partitionCounts.get(topic);
-    if (n === undefined && !this.partitionLookups.has(topic) && !this.closed) {
+    // Only while the producer is healthy: a lookup started while the broker is away would hold the
+    // shared admin client in its connection retries, and a rebuild after the broker's return waits
+    // for that client.
+    const healthy = this.producerConnected && this.producerError === undefined;
+    if (n === undefined && healthy && !this.partitionLookups.has(topic) && !this.closed) {
       this.partitionLookups.add(topic);
       void this.partitionCount(topic)
         .catch(() => undefined)
