@@ -193,6 +193,39 @@ describe.skipIf(!broker)('KafkaBus on a real broker', () => {
     expect(got.map((r) => r.value)).toEqual(['first', 'second']);
   });
 
+  it('comes back from a crash kafkajs will not restart, and reads the uncommitted batch again', async () => {
+    // kafkajs restarts a crashed consumer only for errors it deems retriable; a non-retriable one
+    // (as "Failed to find group coordinator" while a broker goes down) would leave it dead.
+    const prefix = await withTopics(1);
+    const got: string[] = [];
+    const warnings: string[] = [];
+    const logger: KafkaBusLogger = {
+      debug: () => undefined,
+      info: () => undefined,
+      warn: (_o, m) => void warnings.push(m),
+      error: () => undefined,
+    };
+    const bus = newBus({ topicPrefix: prefix, groupId: `${prefix}g`, logger });
+    let thrown = false;
+    await bus.subscribe(['trades'], async (batch) => {
+      if (!thrown) {
+        thrown = true;
+        throw new kafkajs.KafkaJSNonRetriableError('a crash kafkajs does not restart');
+      }
+      for (const r of batch) got.push(r.value);
+    });
+    await bus.publish('trades', [
+      { key: 'A', value: 'one' },
+      { key: 'A', value: 'two' },
+    ]);
+    await until('the batch, read again by the replacement consumer', () => got.length >= 2, 30_000);
+    expect(got).toEqual(['one', 'two']);
+    expect(warnings).toContain('kafka consumer replaced after a crash');
+    await until('connected again', () => bus.connected, 15_000);
+    await bus.publish('trades', [{ key: 'A', value: 'three' }]);
+    await until('a later record', () => got.includes('three'), 15_000);
+  });
+
   it('commits a batch only after its handler resolves: a consumer that dies first leaves it to the next', async () => {
     const prefix = await withTopics(1);
     const groupId = `${prefix}g`;

@@ -167,6 +167,9 @@ interface Member {
   positions: Map<string, bigint>;
   /** topic:partition -> the last deferred commit (they run in batch order). */
   commits: Map<string, Promise<void>>;
+  handler: KafkaBatchHandler;
+  /** A consumer that kafkajs will not restart is being replaced (see replaceCrashed). */
+  replacing: boolean;
 }
 
 export interface KafkaBusStatus {
@@ -387,29 +390,9 @@ export class KafkaBus implements Bus {
     if (this.members.some((m) => m.groupId === groupId && m.state !== 'stopped')) {
       throw new KafkaConfigError(`this bus already has a consumer in group ${groupId}; pass another groupId`);
     }
-    const consumer = this.kafka.consumer({
-      groupId,
-      sessionTimeout: positiveInt('sessionTimeoutMs', this.opts.sessionTimeoutMs, DEFAULTS.sessionTimeoutMs),
-      heartbeatInterval: positiveInt(
-        'heartbeatIntervalMs',
-        this.opts.heartbeatIntervalMs,
-        DEFAULTS.heartbeatIntervalMs,
-      ),
-      maxWaitTimeInMs: this.opts.maxWaitTimeMs ?? DEFAULTS.maxWaitTimeMs,
-      maxBytesPerPartition: this.opts.maxBytesPerPartition ?? DEFAULTS.maxBytesPerPartition,
-      allowAutoTopicCreation: false,
-      retry: {
-        // kafkajs gives up for good on errors it deems non-retriable, such as finding no group
-        // coordinator while a broker restarts; a stream processor has to come back instead.
-        restartOnFailure: async (err: Error) => {
-          this.opts.logger?.warn({ groupId, err: err.message }, 'kafka consumer failed; restarting it');
-          return !this.closed;
-        },
-      },
-    });
     const member: Member = {
       groupId,
-      consumer,
+      consumer: this.newConsumer(groupId),
       topics: [...topics],
       state: 'connecting',
       assignment: [],
@@ -421,15 +404,43 @@ export class KafkaBus implements Bus {
       live: false,
       positions: new Map(),
       commits: new Map(),
+      handler,
+      replacing: false,
     };
     this.members.push(member);
     this.watch(member);
     this.staleTimer ??= setInterval(() => this.updateConnected(), 1_000);
     this.staleTimer.unref();
+    await this.runMember(member);
+  }
 
+  private newConsumer(groupId: string): Consumer {
+    return this.kafka.consumer({
+      groupId,
+      sessionTimeout: positiveInt('sessionTimeoutMs', this.opts.sessionTimeoutMs, DEFAULTS.sessionTimeoutMs),
+      heartbeatInterval: positiveInt(
+        'heartbeatIntervalMs',
+        this.opts.heartbeatIntervalMs,
+        DEFAULTS.heartbeatIntervalMs,
+      ),
+      maxWaitTimeInMs: this.opts.maxWaitTimeMs ?? DEFAULTS.maxWaitTimeMs,
+      maxBytesPerPartition: this.opts.maxBytesPerPartition ?? DEFAULTS.maxBytesPerPartition,
+      allowAutoTopicCreation: false,
+      retry: {
+        // Asked only for errors kafkajs deems retriable; the others are replaceCrashed's.
+        restartOnFailure: async (err: Error) => {
+          this.opts.logger?.warn({ groupId, err: err.message }, 'kafka consumer failed; restarting it');
+          return !this.closed;
+        },
+      },
+    });
+  }
+
+  private async runMember(member: Member): Promise<void> {
+    const { consumer, opts } = member;
     await consumer.connect();
     await consumer.subscribe({
-      topics: topics.map((t) => this.physical(t)),
+      topics: member.topics.map((t) => this.physical(t)),
       fromBeginning: opts.fromBeginning ?? this.opts.fromBeginning ?? true,
     });
     await consumer.run({
@@ -438,8 +449,45 @@ export class KafkaBus implements Bus {
       autoCommit: false,
       eachBatchAutoResolve: false,
       partitionsConsumedConcurrently: this.opts.partitionsConsumedConcurrently ?? 1,
-      eachBatch: (payload) => this.handleBatch(member, payload, handler),
+      eachBatch: (payload) => this.handleBatch(member, payload, member.handler),
     });
+  }
+
+  /**
+   * kafkajs gives up for good on an error it deems non-retriable, such as finding no group
+   * coordinator while a broker goes down, and never asks restartOnFailure: the member would stay
+   * dead. A stream processor has to come back, so the member gets a new consumer in the same group
+   * (after a pause, and again until one runs); its uncommitted batches are fetched again.
+   */
+  private replaceCrashed(member: Member, pauseMs = 2_000): void {
+    if (this.closed || member.replacing) return;
+    member.replacing = true;
+    member.state = 'connecting';
+    const old = member.consumer;
+    const timer = setTimeout(() => {
+      void (async () => {
+        await old.disconnect().catch(() => undefined);
+        if (this.closed) return;
+        member.generation++; // a batch of the old consumer still in a handler is not committed
+        member.live = false;
+        member.assignment = [];
+        member.prep = undefined;
+        member.consumer = this.newConsumer(member.groupId);
+        this.watch(member);
+        member.replacing = false;
+        this.opts.logger?.warn({ groupId: member.groupId }, 'kafka consumer replaced after a crash');
+        try {
+          await this.runMember(member);
+        } catch (err) {
+          this.opts.logger?.warn(
+            { groupId: member.groupId, err: (err as Error).message },
+            'replacement kafka consumer did not start; trying again',
+          );
+          this.replaceCrashed(member, Math.min(pauseMs * 2, 10_000));
+        }
+      })();
+    }, pauseMs);
+    timer.unref();
   }
 
   private async handleBatch(member: Member, p: EachBatchPayload, handler: KafkaBatchHandler): Promise<void> {
@@ -822,13 +870,17 @@ export class KafkaBus implements Bus {
   private watch(member: Member): void {
     const { consumer } = member;
     const ev = consumer.events;
+    // Only the member's current consumer speaks for it (an old one disconnects after a replacement).
+    const current = () => member.consumer === consumer;
     consumer.on(ev.CONNECT, () => this.updateConnected());
     consumer.on(ev.FETCH, () => {
+      if (!current()) return;
       member.lastFetchAt = Date.now();
       if (member.lastError !== undefined && member.state === 'joined') member.lastError = undefined;
       this.updateConnected();
     });
     consumer.on(ev.REBALANCING, () => {
+      if (!current()) return;
       member.state = 'rebalancing';
       member.assignment = [];
       member.generation++;
@@ -837,6 +889,7 @@ export class KafkaBus implements Bus {
       this.opts.onRebalance?.({ kind: 'rebalancing', groupId: member.groupId });
     });
     consumer.on(ev.GROUP_JOIN, (e) => {
+      if (!current()) return;
       member.state = 'joined';
       member.lastFetchAt = Date.now();
       member.assignment = Object.entries(e.payload.memberAssignment)
@@ -871,6 +924,7 @@ export class KafkaBus implements Bus {
       }
     });
     consumer.on(ev.CRASH, (e) => {
+      if (!current()) return;
       member.state = e.payload.restart ? 'connecting' : 'crashed';
       member.assignment = [];
       member.lastError = e.payload.error.message;
@@ -878,9 +932,11 @@ export class KafkaBus implements Bus {
         { groupId: member.groupId, restart: e.payload.restart, err: e.payload.error.message },
         'kafka consumer crashed',
       );
+      if (!e.payload.restart) this.replaceCrashed(member);
       this.updateConnected();
     });
     consumer.on(ev.STOP, () => {
+      if (!current()) return;
       member.state = 'stopped';
       this.updateConnected();
     });
