@@ -50,7 +50,11 @@ describe('memoizedJavaPartitioner', () => {
     const ours = memoizedJavaPartitioner(Partitioners.DefaultPartitioner)();
     const ref = Partitioners.DefaultPartitioner();
     for (const n of [6, 12]) {
-      const args = { topic: 't', partitionMetadata: meta(n), message: { key: 'underlying=ACME', value: 'v' } };
+      const args = {
+        topic: 't',
+        partitionMetadata: meta(n),
+        message: { key: 'underlying=ACME', value: 'v' },
+      };
       expect(ours(args)).toBe(ref(args));
     }
   });
@@ -60,11 +64,16 @@ describe('memoizedJavaPartitioner', () => {
     const ref = Partitioners.DefaultPartitioner();
     const partitionMetadata = meta(6, [2]);
     expect(ours({ topic: 't', partitionMetadata, message: { key: 'x', value: 'v', partition: 4 } })).toBe(4);
-    const buf = { topic: 't', partitionMetadata, message: { key: Buffer.from('underlying=ACME'), value: 'v' } };
+    const buf = {
+      topic: 't',
+      partitionMetadata,
+      message: { key: Buffer.from('underlying=ACME'), value: 'v' },
+    };
     expect(ours(buf)).toBe(ref(buf));
     // No key: kafkajs's round robin over partitions with a leader (never the one that is down).
     const seen = new Set<number>();
-    for (let i = 0; i < 50; i++) seen.add(ours({ topic: 't', partitionMetadata, message: { key: null, value: 'v' } }));
+    for (let i = 0; i < 50; i++)
+      seen.add(ours({ topic: 't', partitionMetadata, message: { key: null, value: 'v' } }));
     expect([...seen].sort()).toEqual([0, 1, 3, 4, 5]);
   });
 });

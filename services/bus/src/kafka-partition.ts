@@ -25,10 +25,6 @@ export function murmur2(data: Uint8Array): number {
   return h | 0;
 }
 
-export function javaPartition(key: string, partitions: number): number {
-  return (murmur2(encoder.encode(key)) & 0x7fffffff) % partitions;
-}
-
 /** kafkajs's partitioner signature (kept structural so this module needs no kafkajs types). */
 export interface PartitionerArgs {
   topic: string;
@@ -41,23 +37,23 @@ const MEMO_KEYS = 1 << 16;
 const hashes = new Map<string, number>();
 
 /**
- * murmur2 of a string key's UTF-8 bytes, sign bit cleared: the key's partition is this modulo the
- * partition count. Remembered: the same node keys are published on every flush, and hashing them
- * afresh cost a tenth of the engine's time at 10 000 ticks/s.
+ * The partition of a string key: murmur2 of its UTF-8 bytes, sign bit cleared, modulo the
+ * partition count. The hash is remembered: the same node keys are published on every flush, and
+ * hashing them afresh cost a tenth of the engine's time at 10 000 ticks/s.
  */
-export function javaKeyHash(key: string): number {
+export function javaPartition(key: string, partitions: number): number {
   let h = hashes.get(key);
   if (h === undefined) {
     if (hashes.size >= MEMO_KEYS) hashes.clear();
     h = murmur2(encoder.encode(key)) & 0x7fffffff;
     hashes.set(key, h);
   }
-  return h;
+  return h % partitions;
 }
 
 /**
  * The Java client's partitioning for kafkajs (`createPartitioner`), as kafkajs's DefaultPartitioner
- * does it, with each string key's hash remembered (javaKeyHash). Records with an explicit
+ * does it, with each string key's hash remembered (javaPartition). Records with an explicit
  * partition, a Buffer key or no key go to `fallback` (kafkajs's own partitioner).
  */
 export function memoizedJavaPartitioner<A extends PartitionerArgs>(
@@ -68,7 +64,7 @@ export function memoizedJavaPartitioner<A extends PartitionerArgs>(
     return (args) => {
       const { key, partition } = args.message;
       if (typeof key !== 'string' || (partition !== null && partition !== undefined)) return other(args);
-      return javaKeyHash(key) % args.partitionMetadata.length;
+      return javaPartition(key, args.partitionMetadata.length);
     };
   };
 }

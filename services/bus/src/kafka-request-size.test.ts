@@ -30,7 +30,7 @@ describe('requestSized', () => {
     // a whole-request bound needs three requests for these ~1.5 MB of bound ...
     expect(requestSized(recs).length).toBe(3);
     // ... six partitions hold ~250 KB each: one request
-    const partitionOf = (k: string) => Number(k.slice('underlying=U'.length)) % 6;
+    const partitionOf = (r: { key: string }) => Number(r.key.slice('underlying=U'.length)) % 6;
     expect(requestSized(recs, MAX_REQUEST_BYTES, partitionOf)).toEqual([recs]);
     // one partition only: cut where that partition's batch would pass the bound
     const parts = requestSized(recs, MAX_REQUEST_BYTES, () => 0);
@@ -38,12 +38,12 @@ describe('requestSized', () => {
     for (const p of parts) expect(p.reduce((n, r) => n + size(r), 0)).toBeLessThanOrEqual(MAX_REQUEST_BYTES);
   });
 
-  it('counts an unkeyed record against every partition', () => {
+  it('counts a record of unknown partition (-1: unkeyed) against every partition', () => {
     // each about 0.375 of the bound (UTF-16 length x 3)
     const half = { key: 'a', value: 'x'.repeat(Math.floor(MAX_REQUEST_BYTES / 8)) };
     const other = { key: 'b', value: half.value };
     const unkeyed = { key: null, value: half.value };
-    const partitionOf = (k: string) => (k === 'a' ? 0 : 1);
+    const partitionOf = (r: { key: string | null }) => (r.key === null ? -1 : r.key === 'a' ? 0 : 1);
     // a and b sit in different partitions: together they fit; an unkeyed one lands on top of each
     expect(requestSized([half, other], MAX_REQUEST_BYTES, partitionOf)).toHaveLength(1);
     expect(

@@ -17,7 +17,7 @@ import type {
 } from 'kafkajs';
 import type { Bus, BusRecord, OutRecord } from './bus.ts';
 import { describeKafkaConfig, KafkaConfigError, resolveConnection } from './kafka-config.ts';
-import { javaKeyHash, javaPartition, memoizedJavaPartitioner } from './kafka-partition.ts';
+import { javaPartition, memoizedJavaPartitioner } from './kafka-partition.ts';
 import { installProduceEncoder } from './kafka-produce-encoder.ts';
 import type { KafkaConnection, KafkaSasl } from './kafka-config.ts';
 
@@ -224,14 +224,15 @@ export const MAX_REQUEST_BYTES = 512 * 1024;
 
 /**
  * Records cut into consecutive runs in which no partition's batch exceeds maxBytes (a larger
- * single record alone). `partitionOf` gives a keyed record's partition; without it, or for a
- * record without a key (kafkajs spreads those), the record counts against every partition. One
- * request per flush matters: the runs are sent one after the other, each waiting for the broker.
+ * single record alone). `partitionOf` gives a record's partition, or -1 when it is not known (a
+ * record without a key: kafkajs spreads those); without it, or at -1, the record counts against
+ * every partition. One request per flush matters: the runs are sent one after the other, each
+ * waiting for the broker.
  */
 export function requestSized<R extends OutRecord>(
   records: R[],
   maxBytes = MAX_REQUEST_BYTES,
-  partitionOf?: (key: string) => number,
+  partitionOf?: (r: R) => number,
 ): R[][] {
   const out: R[][] = [];
   let run: R[] = [];
@@ -241,7 +242,7 @@ export function requestSized<R extends OutRecord>(
   for (const r of records) {
     // UTF-16 length x 3 bounds the UTF-8 length without encoding; plus kafkajs's per-record overhead.
     const size = (r.value.length + (r.key?.length ?? 0)) * 3 + 64;
-    const p = r.key !== null && partitionOf ? partitionOf(r.key) : -1;
+    const p = partitionOf ? partitionOf(r) : -1;
     const before = p < 0 ? fullest : (perPartition.get(p) ?? 0);
     if (run.length && before + everywhere + size > maxBytes) {
       out.push(run);
@@ -355,17 +356,34 @@ export class KafkaBus implements Bus {
 
   async publish(topic: string, records: OutRecord[]): Promise<void> {
     if (records.length === 0) return;
-    const producer = await this.connectProducer();
     const n = this.knownPartitions(topic);
-    const partitionOf = n > 0 ? (key: string) => javaKeyHash(key) % n : undefined;
+    await this.sendInOrder(
+      topic,
+      records.map((r) => ({ key: r.key, value: r.value })),
+      n > 0 ? (r) => (r.key === null ? -1 : javaPartition(r.key, n)) : undefined,
+      this.opts.compression === 'gzip' ? CompressionTypes.GZIP : CompressionTypes.None,
+    );
+  }
+
+  /**
+   * In order, one request at a time (the idempotent producer keeps the order within a partition),
+   * each request as large as the brokers' batch limit allows; a failure marks the producer
+   * unhealthy until a publish succeeds.
+   */
+  private async sendInOrder<M extends OutRecord>(
+    topic: string,
+    messages: M[],
+    partitionOf: ((m: M) => number) | undefined,
+    compression?: number,
+  ): Promise<void> {
+    const producer = await this.connectProducer();
     try {
-      // In order, one request at a time: the idempotent producer keeps the order within a partition.
-      for (const part of requestSized(records, MAX_REQUEST_BYTES, partitionOf)) {
+      for (const part of requestSized(messages, MAX_REQUEST_BYTES, partitionOf)) {
         await producer.send({
           topic: this.physical(topic),
           acks: -1,
-          compression: this.opts.compression === 'gzip' ? CompressionTypes.GZIP : CompressionTypes.None,
-          messages: part.map((r) => ({ key: r.key, value: r.value })),
+          ...(compression !== undefined ? { compression } : {}),
+          messages: part,
         });
       }
       if (this.producerError !== undefined) {
@@ -468,9 +486,7 @@ export class KafkaBus implements Bus {
       void (async () => {
         await old.disconnect().catch(() => undefined);
         if (this.closed) return;
-        member.generation++; // a batch of the old consumer still in a handler is not committed
-        member.live = false;
-        member.assignment = [];
+        this.forgetAssignment(member); // a batch of the old consumer still in a handler is not committed
         member.prep = undefined;
         member.consumer = this.newConsumer(member.groupId);
         this.watch(member);
@@ -488,6 +504,13 @@ export class KafkaBus implements Bus {
       })();
     }, pauseMs);
     timer.unref();
+  }
+
+  /** The partitions are no longer this member's: what it still handles from them is not committed. */
+  private forgetAssignment(member: Member): void {
+    member.assignment = [];
+    member.generation++;
+    member.live = false;
   }
 
   private async handleBatch(member: Member, p: EachBatchPayload, handler: KafkaBatchHandler): Promise<void> {
@@ -830,28 +853,11 @@ export class KafkaBus implements Bus {
   async publishPartitioned(topic: string, records: (OutRecord & { partitionKey: string })[]): Promise<void> {
     if (records.length === 0) return;
     const n = await this.partitionCount(topic);
-    const producer = await this.connectProducer();
-    try {
-      for (const part of requestSized(records)) {
-        await producer.send({
-          topic: this.physical(topic),
-          acks: -1,
-          messages: part.map((r) => ({
-            key: r.key,
-            value: r.value,
-            partition: javaPartition(r.partitionKey, n),
-          })),
-        });
-      }
-      if (this.producerError !== undefined) {
-        this.producerError = undefined;
-        this.updateConnected();
-      }
-    } catch (e) {
-      this.producerError = (e as Error).message;
-      this.updateConnected();
-      throw e;
-    }
+    await this.sendInOrder(
+      topic,
+      records.map((r) => ({ key: r.key, value: r.value, partition: javaPartition(r.partitionKey, n) })),
+      (m) => m.partition,
+    );
   }
 
   private toRecord(topic: string, partition: number, m: KafkaMessage): BusRecord {
@@ -882,9 +888,7 @@ export class KafkaBus implements Bus {
     consumer.on(ev.REBALANCING, () => {
       if (!current()) return;
       member.state = 'rebalancing';
-      member.assignment = [];
-      member.generation++;
-      member.live = false;
+      this.forgetAssignment(member);
       this.updateConnected();
       this.opts.onRebalance?.({ kind: 'rebalancing', groupId: member.groupId });
     });
