@@ -302,11 +302,7 @@ export class RiskEngine {
 
   ingest(raw: string, source: string): Outcome {
     const d = decodeInput(raw);
-    if (!d.ok) {
-      this.reject(d.reason, source, raw);
-      this.observer?.input?.(typeOfRaw(raw), 'rejected');
-      return 'rejected';
-    }
+    if (!d.ok) return this.rejectUndecodable(d.reason, source, raw);
     return this.process(d.msg, source, raw);
   }
 
@@ -330,9 +326,7 @@ export class RiskEngine {
       const { raw, source } = items[k] as { raw: string; source: string };
       const d = decodeInput(raw);
       if (!d.ok) {
-        this.reject(d.reason, source, raw);
-        this.observer?.input?.(typeOfRaw(raw), 'rejected');
-        out[k] = 'rejected';
+        out[k] = this.rejectUndecodable(d.reason, source, raw);
         continue;
       }
       if (d.msg.type !== 'spot') {
@@ -566,26 +560,19 @@ export class RiskEngine {
     return `trade.underlying may not change from ${rec.underlying} to ${msg.underlying} (trade ${msg.tradeId}): the underlying is the bus key; cancel and book a new trade instead`;
   }
 
+  /** A new input: its own changes, checks and alerts start empty; then time moves on (advance). */
   private begin(tsMs: number): void {
-    let t: number;
-    if (this.clock) {
-      // valuation time never goes backwards, whatever the clock does
-      t = Math.max(this.valuationMs, this.clock.now());
-    } else {
-      if (tsMs > this.eventMs) this.eventMs = tsMs;
-      t = this.eventMs;
-    }
-    this.valuationMs = t;
     this.seq += 1;
-    this.markSeq += 1;
     this.checkNodes.length = 0;
     this.inputAlerts = [];
     this.inputRevaluations = 0;
     this.inputChangedNodes = 0;
-    this.sweepStale(t);
+    this.advance(tsMs);
   }
-  /** The next input of a run (ingestSpots): time moves on, the run's changes keep accumulating. */
+
+  /** Valuation time moves on; within a run (ingestSpots) the run's changes keep accumulating. */
   private advance(tsMs: number): void {
+    // valuation time never goes backwards, whatever the clock does
     const t = this.clock
       ? Math.max(this.valuationMs, this.clock.now())
       : (this.eventMs = Math.max(this.eventMs, tsMs));
@@ -611,6 +598,13 @@ export class RiskEngine {
     this.totalRevaluations += this.inputRevaluations;
     if (this.inputRevaluations > 0) this.observer?.revaluations?.(this.inputRevaluations);
     if (this.inputChangedNodes > 0) this.observer?.exposuresChanged?.(this.inputChangedNodes);
+  }
+
+  /** A record that failed to decode or validate: dead-lettered, counted under the type it claims. */
+  private rejectUndecodable(reason: string, source: string, raw: string): Outcome {
+    this.reject(reason, source, raw);
+    this.observer?.input?.(typeOfRaw(raw), 'rejected');
+    return 'rejected';
   }
 
   private reject(reason: string, source: string, raw: string): void {

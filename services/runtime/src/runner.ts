@@ -311,10 +311,9 @@ export class EngineRunner {
     for (const p of plan.records) {
       if (p.spot) this.counters.spots++;
       if (!p.apply) {
-        this.counters.accepted++;
+        // a superseded spot: accepted, and its latency is its successor's publication
         this.opts.observer?.input?.('spot', 'accepted');
-        if (p.spot)
-          ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: p.record.timestamp });
+        counted('accepted', p);
         continue;
       }
       if (p.spot) {
