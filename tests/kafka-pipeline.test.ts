@@ -9,7 +9,7 @@ import { afterAll, describe, expect, it } from 'vitest';
 import { KafkaBus, ensureTopics, topicPlan } from '@keelson/bus';
 import type { BusRecord } from '@keelson/bus';
 import { MarketSim } from '@keelson/sim';
-import { decodeInput, inputKey, inputTopic } from '@keelson/shared-types';
+import { METRICS, decodeInput, inputKey, inputTopic } from '@keelson/shared-types';
 import type { ExposureMsg, RejectedMsg } from '@keelson/shared-types';
 import { routeMalformed } from '@keelson/runtime';
 import { run as replay } from '../services/cli/src/commands/replay.ts';
@@ -111,18 +111,6 @@ async function quiet(records: unknown[], quietMs: number, timeoutMs: number): Pr
   }
 }
 
-const METRIC_FIELDS = [
-  'pv',
-  'pnl',
-  'delta',
-  'cashDelta',
-  'gamma',
-  'cashGamma',
-  'vega',
-  'theta',
-  'rho',
-] as const;
-
 /** Equal as a risk report: same counts and flags, amounts equal to a relative tolerance. */
 function expectSameExposure(got: ExposureMsg, want: ExposureMsg, relTol: number): void {
   expect({
@@ -138,7 +126,7 @@ function expectSameExposure(got: ExposureMsg, want: ExposureMsg, relTol: number)
     stale: want.stale,
     currency: want.currency,
   });
-  for (const m of METRIC_FIELDS) {
+  for (const m of METRICS) {
     const g = got[m];
     const w = want[m];
     if (w === null || g === null) {

@@ -3,6 +3,7 @@
 // engine rebuilt from the final state alone.
 import { describe, expect, it } from 'vitest';
 import fc from 'fast-check';
+import { METRICS } from '@keelson/shared-types';
 import type { ExposureMsg, InputMsg } from '@keelson/shared-types';
 import { ManualClock } from './clock.ts';
 import { RiskEngine } from './engine.ts';
@@ -21,18 +22,6 @@ import {
 } from './test-support.ts';
 import type { TradeSpec } from './test-support.ts';
 
-const METRIC_KEYS = [
-  'pv',
-  'pnl',
-  'delta',
-  'cashDelta',
-  'gamma',
-  'cashGamma',
-  'vega',
-  'theta',
-  'rho',
-] as const;
-
 /** Node-by-node equality to a relative tolerance (the sums are reached by different routes). */
 function expectSameSnapshot(a: ExposureMsg[], b: ExposureMsg[], tol = 1e-9): void {
   expect(a.map((x) => x.nodeKey)).toEqual(b.map((x) => x.nodeKey));
@@ -44,7 +33,7 @@ function expectSameSnapshot(a: ExposureMsg[], b: ExposureMsg[], tol = 1e-9): voi
       u: y.unpriced,
       s: y.stale,
     });
-    for (const m of METRIC_KEYS) {
+    for (const m of METRICS) {
       const u = x[m];
       const v = y[m];
       if (u === null || v === null) {
@@ -296,7 +285,7 @@ describe('property: incremental sums', () => {
         for (const n of e.snapshot()) {
           const r = resum.get(n.nodeKey);
           expect(n.positions).toBe(r?.positions ?? 0);
-          METRIC_KEYS.forEach((m, k) => {
+          METRICS.forEach((m, k) => {
             const v = n[m];
             if (v === null) return;
             const want = r ? (r.values[k] as number) : 0;
@@ -323,7 +312,7 @@ describe('property: incremental sums', () => {
       let where = '';
       for (const n of e.snapshot()) {
         const r = resum.get(n.nodeKey);
-        METRIC_KEYS.forEach((m, k) => {
+        METRICS.forEach((m, k) => {
           const v = n[m];
           if (v === null) return;
           const want = r ? (r.values[k] as number) : 0;

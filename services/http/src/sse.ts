@@ -31,6 +31,7 @@
 // Currency and dimensions are left out: the page shows neither per row, and the dimensions follow
 // from the key (contract node keys). Full exposures remain on the state event and on /exposures.
 import type { IncomingMessage, ServerResponse } from 'node:http';
+import { METRICS } from '@keelson/shared-types';
 import type { AlertMsg, ExposureMsg, Metric, StaleFeedMsg } from '@keelson/shared-types';
 
 /** What the page needs to draw one limit's bar: its bounds and where the value stands. */
@@ -74,18 +75,8 @@ export interface SseHubOptions {
   maxBacklogBytes?: number;
 }
 
-/** The metrics of a `nodes` event's binary block, in order, nine doubles per row. */
-export const NODE_METRICS = [
-  'pv',
-  'pnl',
-  'delta',
-  'cashDelta',
-  'gamma',
-  'cashGamma',
-  'vega',
-  'theta',
-  'rho',
-] as const;
+/** The metrics of a `nodes` event's binary block, in order, nine doubles per row: the contract's order. */
+export const NODE_METRICS = METRICS;
 const METRIC_COUNT = NODE_METRICS.length;
 
 export interface SseHubStats {
