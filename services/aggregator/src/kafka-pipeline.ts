@@ -717,6 +717,16 @@ export async function runKafkaPipeline(opts: {
     'running on kafka',
   );
 
+  const bounded = (work: Promise<unknown>, ms: number, what: string): Promise<unknown> =>
+    Promise.race([
+      work,
+      new Promise((r) =>
+        setTimeout(() => {
+          log.warn({ what, ms }, 'shutdown step did not finish in time; going on');
+          r(undefined);
+        }, ms).unref(),
+      ),
+    ]);
   return await new Promise<number>((resolve) => {
     let stopping = false;
     const stop = async (why: string) => {
@@ -724,8 +734,19 @@ export async function runKafkaPipeline(opts: {
       stopping = true;
       log.info({ why }, 'stopping');
       for (const f of stopFns) await f().catch((err: unknown) => onError(err, 'stop'));
-      await bus.close().catch((err: unknown) => onError(err, 'bus close'));
-      await http.close().catch(() => undefined);
+      // The last flush is out and its commits were given their chance inside close(); leaving the
+      // group must not keep a stopped service from exiting (the broker's session timeout covers it).
+      await bounded(
+        bus.close().catch((err: unknown) => onError(err, 'bus close')),
+        20_000,
+        'leaving the broker',
+      );
+      await bounded(
+        http.close().catch(() => undefined),
+        5_000,
+        'closing the HTTP server',
+      );
+      log.info({ why }, 'stopped');
       process.off('SIGINT', onSig);
       process.off('SIGTERM', onSig);
       resolve(0);
