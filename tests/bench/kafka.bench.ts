@@ -143,39 +143,30 @@ const publishS = (performance.now() - t0) / 1000;
 const totalSpots = spots.length + TICKS;
 
 // 1. Bare kafkajs: fetch and count, nothing else (the target's reference); and, for context, the
-//    same consumer decoding each value as JSON, the least any consumer of these ticks must do.
-async function bareDrain(group: string, look: (value: Buffer | null) => void): Promise<number> {
-  const consumer = kafka.consumer({
-    groupId: `${prefix}${group}`,
-    maxWaitTimeInMs: 50,
-    maxBytesPerPartition: 4 * 1024 * 1024,
-  });
-  await consumer.connect();
-  await consumer.subscribe({ topics: [prefix + 'spots'], fromBeginning: true });
-  let n = 0;
-  // From the moment the group is joined: the join itself is not the transport's throughput.
-  let first = 0;
-  consumer.on(consumer.events.GROUP_JOIN, () => (first = performance.now()));
-  const done = new Promise<void>((resolve) => {
-    void consumer.run({
-      partitionsConsumedConcurrently: 6,
-      eachBatch: async ({ batch }) => {
-        for (const m of batch.messages) look(m.value);
-        n += batch.messages.length;
-        if (n >= totalSpots) resolve();
-      },
+//    same consumer decoding each value as JSON (the least any consumer of these ticks must do),
+//    and counting with Keelson's fetch decoder in place of kafkajs's (what the engine runs on).
+//    Each in a process of its own (kafka-drain.ts), so that the bare one is kafkajs alone.
+function bareDrain(mode: 'bare' | 'json' | 'keelson-decoder'): Promise<{ rate: number; parsed: number }> {
+  const script = join(process.cwd(), 'tests', 'bench', 'kafka-drain.ts');
+  const child = spawn(
+    process.execPath,
+    ['--import', 'tsx', script, brokers.join(','), prefix + 'spots', String(totalSpots), mode],
+    { stdio: ['ignore', 'pipe', 'inherit'] },
+  );
+  let out = '';
+  child.stdout.on('data', (d: Buffer) => (out += d.toString()));
+  return new Promise((resolve, reject) => {
+    child.on('exit', (code) => {
+      if (code !== 0) reject(new Error(`kafka bench: the ${mode} drain exited with ${code}`));
+      else resolve(JSON.parse(out.trim().split('\n').at(-1)!) as { rate: number; parsed: number });
     });
   });
-  await done;
-  const s = (performance.now() - first) / 1000;
-  await consumer.disconnect();
-  return totalSpots / s;
 }
-let sink = 0;
-const bareRate = await bareDrain('bare', () => undefined);
-const parseRate = await bareDrain('bare-json', (v) => {
-  sink += (JSON.parse(v!.toString()) as { price: number }).price > 0 ? 1 : 0;
-});
+const bareRate = (await bareDrain('bare')).rate;
+const jsonDrain = await bareDrain('json');
+const parseRate = jsonDrain.rate;
+const sink = jsonDrain.parsed;
+const decoderRate = (await bareDrain('keelson-decoder')).rate;
 
 // 2. The engine: restart, rebuild (the book), then drain the tick backlog live.
 engine = startEngine(group);
@@ -263,6 +254,9 @@ console.log(
 console.log(`bare kafkajs consumer drain:   ${bareRate.toFixed(0)} ticks/s`);
 console.log(
   `  same, JSON.parse of each value: ${parseRate.toFixed(0)} ticks/s (${(parseRate / bareRate).toFixed(3)} of bare; ${sink} parsed)`,
+);
+console.log(
+  `  same, with Keelson's fetch decoder: ${decoderRate.toFixed(0)} ticks/s (${(decoderRate / bareRate).toFixed(3)} of bare)`,
 );
 console.log(
   `keelson run (role all) drain:  ${engineRate.toFixed(0)} ticks/s (ingest, revalue, publish, ack, commit)`,

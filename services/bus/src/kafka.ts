@@ -18,6 +18,7 @@ import type {
 import type { Bus, BusRecord, OutRecord } from './bus.ts';
 import { describeKafkaConfig, KafkaConfigError, resolveConnection } from './kafka-config.ts';
 import { javaPartition, memoizedJavaPartitioner } from './kafka-partition.ts';
+import { installFetchDecoder } from './kafka-fetch-decoder.ts';
 import { installProduceEncoder } from './kafka-produce-encoder.ts';
 import type { KafkaConnection, KafkaSasl } from './kafka-config.ts';
 
@@ -31,6 +32,10 @@ const produceEncoder =
     : installProduceEncoder()
       ? 'keelson'
       : 'kafkajs';
+// Likewise before any consumer of this process decodes a fetch (kafka-fetch-decoder.ts);
+// KEELSON_FETCH_DECODER=kafkajs keeps kafkajs's own decoder.
+const fetchDecoder =
+  process.env.KEELSON_FETCH_DECODER === 'kafkajs' ? 'kafkajs' : installFetchDecoder() ? 'keelson' : 'kafkajs';
 
 /** The pino-shaped subset the transport logs through (pino's own logger fits). */
 export interface KafkaBusLogger {
@@ -334,6 +339,7 @@ export class KafkaBus implements Bus {
         topicPrefix: this.topicPrefix,
         groupId: this.groupId,
         produceEncoder,
+        fetchDecoder,
       },
       'kafka bus configured',
     );
