@@ -3,7 +3,8 @@
 // server reads, not through prom-client's own objects.
 import { createRequire } from 'node:module';
 import { describe, expect, it } from 'vitest';
-import { KeelsonMetrics, type MetricsSource } from './metrics.ts';
+import { Histogram, Registry } from 'prom-client';
+import { KeelsonMetrics, LATENCY_BUCKETS, PlainHistogram, type MetricsSource } from './metrics.ts';
 
 interface Family {
   name: string;
@@ -102,6 +103,39 @@ describe('KeelsonMetrics: event counters through the observer', () => {
     expect(value(f, 'keelson_alerts_total', { severity: 'warning', state: 'eased' })).toBe(1);
     expect(value(f, 'keelson_alerts_total', { severity: 'ok', state: 'cleared' })).toBe(1);
     expect(value(f, 'keelson_alerts_total', { severity: 'breach', state: 'raised' })).toBe(1);
+  });
+});
+
+describe('PlainHistogram', () => {
+  it('exposes exactly the text prom-client gives its own Histogram for the same samples', async () => {
+    // The reference is prom-client itself: same name, help, buckets and observations.
+    const theirs = new Registry();
+    const ours = new Registry();
+    const ref = new Histogram({
+      name: 'h_seconds',
+      help: 'a "help" line',
+      buckets: LATENCY_BUCKETS,
+      registers: [theirs],
+    });
+    const plain = new PlainHistogram('h_seconds', 'a "help" line', LATENCY_BUCKETS);
+    ours.registerMetric(plain as unknown as Histogram);
+    expect(await ours.metrics()).toBe(await theirs.metrics()); // empty
+    let seed = 3;
+    const r = () => (seed = (Math.imul(seed, 1103515245) + 12345) >>> 0) / 2 ** 32;
+    const edges = [0, 0.001, 0.0025, 10, 10.000001, 1e6];
+    for (let i = 0; i < 5000; i++) {
+      const v = i < edges.length ? edges[i]! : r() < 0.5 ? r() * 0.2 : r() * 20;
+      ref.observe(v);
+      plain.observe(v);
+    }
+    expect(await ours.metrics()).toBe(await theirs.metrics());
+    expect(await ours.getMetricsAsJSON()).toEqual(await theirs.getMetricsAsJSON());
+    expect(() => plain.observe(Number.NaN)).toThrow(TypeError);
+    ref.reset();
+    plain.reset();
+    ref.observe(0.3);
+    plain.observe(0.3);
+    expect(await ours.metrics()).toBe(await theirs.metrics());
   });
 });
 
