@@ -1,9 +1,9 @@
 /** Decoding and validating raw input records. Never throws: a bad input becomes a reason. */
 import { INPUT_TYPES, type InputType } from './constants.ts';
-import { INPUT_SCHEMAS, type InputMsg } from './inputs.ts';
+import { INPUT_SCHEMAS, type InputMsg, type SpotMsg } from './inputs.ts';
 import { outputSchema, type OutputMsg } from './outputs.ts';
 import { formatIssues } from './reasons.ts';
-import { isContractTs } from './time.ts';
+import { contractTsMsAt, isContractTs } from './time.ts';
 
 export type DecodeResult = { ok: true; msg: InputMsg } | { ok: false; reason: string };
 
@@ -66,8 +66,99 @@ export function validateInput(obj: unknown): DecodeResult {
   }
 }
 
+const SPOT_HEAD = '{"type":"spot","underlying":"';
+const PRICE_KEY = '","price":';
+const TS_KEY = ',"ts":"';
+
+/** What scanSpot read: reused from record to record (nothing is allocated per record but the name). */
+export interface SpotScan {
+  underlying: string;
+  price: number;
+  /** Epoch ms of the timestamp. */
+  tsMs: number;
+  /** The timestamp is raw.slice(tsFrom, raw.length - 2). */
+  tsFrom: number;
+}
+
+/**
+ * A spot record in exactly the form JSON.stringify gives a contract spot (keys in contract order,
+ * no whitespace, no escapes) is read here without JSON.parse, into `out`; for anything else it
+ * returns false and the record takes the general path. Every record this accepts, JSON.parse
+ * plus the validator accept too, with the same message (a test holds the two to it).
+ */
+export function scanSpot(raw: string, out: SpotScan): boolean {
+  if (!raw.startsWith(SPOT_HEAD)) return false;
+  const uStart = SPOT_HEAD.length;
+  const uEnd = raw.indexOf('"', uStart);
+  if (uEnd < 0 || !raw.startsWith(PRICE_KEY, uEnd)) return false;
+  const pStart = uEnd + PRICE_KEY.length;
+  const pEnd = raw.indexOf(',', pStart);
+  if (pEnd < 0 || !raw.startsWith(TS_KEY, pEnd)) return false;
+  const tStart = pEnd + TS_KEY.length;
+  const tEnd = raw.length - 2;
+  if (tEnd < tStart || raw.charCodeAt(tEnd) !== 34 || raw.charCodeAt(tEnd + 1) !== 125) return false;
+  for (let i = uStart; i < uEnd; i++) {
+    const c = raw.charCodeAt(i);
+    // JSON strings hold no raw control characters; an escape is left to JSON.parse
+    if (c < 0x20 || c === 92) return false;
+  }
+  if (!isJsonNumber(raw, pStart, pEnd)) return false;
+  // ts: contract timestamps are plain ASCII, so a range contractTsMsAt accepts has no escape
+  const tsMs = contractTsMsAt(raw, tStart, tEnd);
+  if (Number.isNaN(tsMs)) return false;
+  const price = Number(raw.slice(pStart, pEnd));
+  if (!(price > 0) || !Number.isFinite(price)) return false;
+  const underlying = raw.slice(uStart, uEnd);
+  if (!NAME.test(underlying)) return false;
+  out.underlying = underlying;
+  out.price = price;
+  out.tsMs = tsMs;
+  out.tsFrom = tStart;
+  return true;
+}
+
+/** The message scanSpot read from `raw`. */
+export function scannedSpot(raw: string, scan: SpotScan): SpotMsg {
+  return {
+    type: 'spot',
+    underlying: scan.underlying,
+    price: scan.price,
+    ts: raw.slice(scan.tsFrom, raw.length - 2),
+  };
+}
+
+const scratch: SpotScan = { underlying: '', price: 0, tsMs: 0, tsFrom: 0 };
+
+// Module-level, not a closure per call: the streaming path reads one number per record.
+function isDigitAt(s: string, k: number): boolean {
+  const c = s.charCodeAt(k);
+  return c >= 48 && c <= 57;
+}
+
+/** RFC 8259 section 6: -? (0 | [1-9][0-9]*) (. [0-9]+)? ([eE] [+-]? [0-9]+)? over s[from..to). */
+function isJsonNumber(s: string, from: number, to: number): boolean {
+  let i = from;
+  if (s.charCodeAt(i) === 45) i++;
+  if (i >= to || !isDigitAt(s, i)) return false;
+  if (s.charCodeAt(i) === 48) i++;
+  else while (i < to && isDigitAt(s, i)) i++;
+  if (i < to && s.charCodeAt(i) === 46) {
+    i++;
+    if (i >= to || !isDigitAt(s, i)) return false;
+    while (i < to && isDigitAt(s, i)) i++;
+  }
+  if (i < to && (s.charCodeAt(i) === 101 || s.charCodeAt(i) === 69)) {
+    i++;
+    if (i < to && (s.charCodeAt(i) === 43 || s.charCodeAt(i) === 45)) i++;
+    if (i >= to || !isDigitAt(s, i)) return false;
+    while (i < to && isDigitAt(s, i)) i++;
+  }
+  return i === to;
+}
+
 /** Parse one raw record or tape line: JSON.parse, then validate. */
 export function decodeInput(raw: string): DecodeResult {
+  if (scanSpot(raw, scratch)) return { ok: true, msg: scannedSpot(raw, scratch) };
   let obj: unknown;
   try {
     obj = JSON.parse(raw);

@@ -68,10 +68,10 @@ export {
 } from './outputs.ts';
 export type { NodeDims, ExposureMsg, AlertMsg, StaleFeedMsg, RejectedMsg, OutputMsg } from './outputs.ts';
 
-export { decodeInput, validateInput, validateOutput } from './decode.ts';
-export type { DecodeResult, OutputCheck } from './decode.ts';
+export { decodeInput, scanSpot, scannedSpot, validateInput, validateOutput } from './decode.ts';
+export type { DecodeResult, OutputCheck, SpotScan } from './decode.ts';
 export { formatIssues, formatPath } from './reasons.ts';
-export { parseTs, formatTs, isContractTs } from './time.ts';
+export { parseTs, formatTs, isContractTs, contractTsMs, contractTsMsAt } from './time.ts';
 export {
   TOPICS,
   INPUT_TOPICS,

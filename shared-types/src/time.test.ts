@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { formatTs, isContractTs, parseTs } from './time.ts';
+import { contractTsMs, formatTs, isContractTs, parseTs } from './time.ts';
 
 describe('contract timestamps', () => {
   it('parses UTC instants with and without milliseconds', () => {
@@ -47,5 +47,46 @@ describe('contract timestamps', () => {
   it('formats with milliseconds and round-trips', () => {
     expect(formatTs(1_772_409_600_000 + 52_200_125)).toBe('2026-03-02T14:30:00.125Z');
     expect(parseTs(formatTs(123_456_789))).toBe(123_456_789);
+  });
+
+  it('contractTsMs reads every string as isContractTs and Date.parse (ECMAScript) together do', () => {
+    // The reference: `isContractTs(s) ? Date.parse(s) : NaN`. Strings: valid instants over years
+    // 0..9999 (two-digit years included, which Date.UTC would shift), each mutated at one place.
+    let seed = 17;
+    const r = () => (seed = (Math.imul(seed, 1103515245) + 12345) >>> 0) / 2 ** 32;
+    const alphabet = '0123456789-:.TZz+ 9';
+    const reference = (s: string) => (isContractTs(s) ? Date.parse(s) : Number.NaN);
+    let valid = 0;
+    for (let i = 0; i < 40_000; i++) {
+      const ms = Math.floor((r() * 2 - 1) * 62_000_000_000_000) + (r() < 0.1 ? -62_000_000_000_000 : 0);
+      let s = new Date(ms).toISOString();
+      if (s.startsWith('-') || s.startsWith('+')) s = '1999-12-31T23:59:59.999Z';
+      const cut = r();
+      if (cut < 0.2) s = s.replace(/\.\d+Z$/, 'Z');
+      else if (cut < 0.3) s = s.replace(/(\.\d)\d\dZ$/, '$1Z');
+      else if (cut < 0.4) s = s.replace(/(\.\d\d)\dZ$/, '$1Z');
+      if (r() < 0.5) {
+        const at = Math.floor(r() * (s.length + 1));
+        const c = alphabet[Math.floor(r() * alphabet.length)]!;
+        const op = r();
+        s =
+          op < 0.4
+            ? s.slice(0, at) + c + s.slice(at + 1)
+            : op < 0.7
+              ? s.slice(0, at) + c + s.slice(at)
+              : s.slice(0, at) + s.slice(at + 1);
+      }
+      const want = reference(s);
+      if (!Number.isNaN(want)) valid++;
+      expect(Object.is(contractTsMs(s), want) || contractTsMs(s) === want, s).toBe(true);
+    }
+    expect(valid).toBeGreaterThan(15_000);
+    for (const s of [
+      '0000-01-01T00:00:00Z',
+      '0050-02-28T12:00:00.5Z',
+      '2000-02-29T23:59:59.99Z',
+      '2024-02-30T00:00:00Z',
+    ])
+      expect(contractTsMs(s), s).toEqual(reference(s));
   });
 });

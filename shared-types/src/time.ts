@@ -40,6 +40,78 @@ export function isContractTs(s: string): boolean {
   return tsProblem(s) === null;
 }
 
+const ZERO = 48;
+
+/** The digits s[at..at+n) as a number, or -1 if any is not a digit. */
+function digits(s: string, at: number, n: number): number {
+  let v = 0;
+  for (let i = at; i < at + n; i++) {
+    const d = s.charCodeAt(i) - ZERO;
+    if (d < 0 || d > 9) return -1;
+    v = v * 10 + d;
+  }
+  return v;
+}
+
+/** Days from 1970-01-01 to a proleptic Gregorian date (any year 0..9999, no two-digit-year rule). */
+function daysFromCivil(y: number, m: number, d: number): number {
+  const yy = m <= 2 ? y - 1 : y;
+  const era = Math.floor(yy / 400);
+  const yoe = yy - era * 400;
+  const doy = Math.floor((153 * (m + (m > 2 ? -3 : 9)) + 2) / 5) + d - 1;
+  const doe = yoe * 365 + Math.floor(yoe / 4) - Math.floor(yoe / 100) + doy;
+  return era * 146097 + doe - 719468;
+}
+
+/**
+ * Epoch milliseconds of a contract timestamp, NaN for anything that is not one: the same answer
+ * as `isContractTs(s) ? Date.parse(s) : NaN` (a test holds it to that), read by hand because the
+ * streaming path reads one per record.
+ */
+export function contractTsMs(s: string): number {
+  return contractTsMsAt(s, 0, s.length);
+}
+
+// Consecutive ticks share their date: its day number is remembered.
+let lastDate = '';
+let lastDateDays = 0;
+
+/** contractTsMs of s.slice(from, to), without the slice. */
+export function contractTsMsAt(s: string, from: number, to: number): number {
+  const len = to - from;
+  // YYYY-MM-DDTHH:MM:SS then Z, or . and 1-3 digits then Z
+  if (from < 0 || to > s.length) return Number.NaN;
+  if (len < 20 || len > 24 || len === 21 || s.charCodeAt(to - 1) !== 90 /* Z */) return Number.NaN;
+  const f = from;
+  if (s[f + 4] !== '-' || s[f + 7] !== '-' || s[f + 10] !== 'T' || s[f + 13] !== ':' || s[f + 16] !== ':')
+    return Number.NaN;
+  const hour = digits(s, f + 11, 2);
+  const minute = digits(s, f + 14, 2);
+  const second = digits(s, f + 17, 2);
+  let ms = 0;
+  if (len > 20) {
+    if (s[f + 19] !== '.') return Number.NaN;
+    const frac = digits(s, f + 20, len - 21);
+    if (frac < 0) return Number.NaN;
+    ms = frac * (len === 22 ? 100 : len === 23 ? 10 : 1);
+  }
+  if (hour < 0 || minute < 0 || second < 0 || hour > 23 || minute > 59 || second > 59) return Number.NaN;
+  let days: number;
+  if (lastDate.length === 10 && s.startsWith(lastDate, f)) days = lastDateDays;
+  else {
+    const year = digits(s, f, 4);
+    const month = digits(s, f + 5, 2);
+    const day = digits(s, f + 8, 2);
+    if (year < 0 || month < 1 || month > 12 || day < 1) return Number.NaN;
+    const monthDays = month === 2 && isLeapYear(year) ? 29 : (DAYS_IN_MONTH[month - 1] ?? 0);
+    if (day > monthDays) return Number.NaN;
+    days = daysFromCivil(year, month, day);
+    lastDate = s.slice(f, f + 10);
+    lastDateDays = days;
+  }
+  return ((days * 24 + hour) * 60 + minute) * 60_000 + second * 1000 + ms;
+}
+
 /**
  * Epoch milliseconds of a contract timestamp. Throws a RangeError on anything that is not one,
  * so that a NaN never leaks into valuation time.

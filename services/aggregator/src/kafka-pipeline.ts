@@ -224,10 +224,12 @@ async function latestAlerts(bus: KafkaBus): Promise<LastTold> {
 
 /** Applies records to an engine while rebuilding: state only, every output dropped. */
 function restoreInto(engine: RiskEngine, records: BusRecord[]): void {
-  for (const p of planBatch(records).records) {
-    if (!p.apply) continue;
+  const plan = planBatch([records]);
+  for (let i = 0; i < records.length; i++) {
+    if (plan.apply[i] === 0) continue;
+    const r = records[i] as BusRecord;
     try {
-      engine.ingest(p.record.value, originOf(p.record));
+      engine.ingest(r.value, originOf(r), plan.decoded(i, r.value));
     } catch {
       // Already dead-lettered when it was first handled; a rebuild must not stop on it.
     }

@@ -16,6 +16,7 @@ import { METRICS, TENORS, UNPRICED_REASONS, decodeInput, formatTs, tenorBucket }
 import type {
   AlertMsg,
   CurveMsg,
+  DecodeResult,
   ExposureMsg,
   InputMsg,
   LimitMsg,
@@ -64,8 +65,16 @@ import {
 
 export type Outcome = 'accepted' | 'duplicate' | 'rejected';
 
+/** One record of a spot run (ingestSpots); `decoded` as for ingest(). */
+export interface SpotItem {
+  raw: string;
+  source: string;
+  decoded?: DecodeResult;
+}
+
 export interface EngineObserver {
-  input?(type: string, outcome: Outcome): void;
+  /** `count` inputs of one type and outcome (default 1). */
+  input?(type: string, outcome: Outcome, count?: number): void;
   /** instrument revaluations performed by one input (or one revalueAll) */
   revaluations?(count: number): void;
   /** nodes whose exposure changed through one input */
@@ -300,8 +309,9 @@ export class RiskEngine {
 
   // ------------------------------------------------------------------ public API
 
-  ingest(raw: string, source: string): Outcome {
-    const d = decodeInput(raw);
+  /** `decoded`: decodeInput(raw), when the caller has it already (the runner's batch plan). */
+  ingest(raw: string, source: string, decoded?: DecodeResult): Outcome {
+    const d = decoded ?? decodeInput(raw);
     if (!d.ok) return this.rejectUndecodable(d.reason, source, raw);
     return this.process(d.msg, source, raw);
   }
@@ -319,12 +329,12 @@ export class RiskEngine {
    * after the run is the one per-record ingestion reaches. Anything that is not a spot ends the
    * run and is processed on its own, as by ingest().
    */
-  ingestSpots(items: readonly { raw: string; source: string }[]): Outcome[] {
+  ingestSpots(items: readonly SpotItem[]): Outcome[] {
     const out = new Array<Outcome>(items.length);
     let open = false;
     for (let k = 0; k < items.length; k++) {
-      const { raw, source } = items[k] as { raw: string; source: string };
-      const d = decodeInput(raw);
+      const { raw, source, decoded } = items[k] as SpotItem;
+      const d = decoded ?? decodeInput(raw);
       if (!d.ok) {
         out[k] = this.rejectUndecodable(d.reason, source, raw);
         continue;

@@ -30,10 +30,10 @@ const curve: BusRecord = {
     zeroRates: [0.04],
   }),
 };
-const applied = (batch: BusRecord[]) =>
-  planBatch(batch)
-    .records.map((r, i) => (r.apply ? i : -1))
-    .filter((i) => i >= 0);
+const applied = (batch: BusRecord[]) => {
+  const plan = planBatch([batch.slice(0, 1), batch.slice(1)]); // chunks read as one batch
+  return [...plan.apply].map((a, i) => (a ? i : -1)).filter((i) => i >= 0);
+};
 
 describe('planBatch (spot conflation)', () => {
   it('applies only the newest spot of a run per underlying, other underlyings untouched', () => {
@@ -43,10 +43,13 @@ describe('planBatch (spot conflation)', () => {
       spot('AX', 2, '2026-03-02T14:30:00.100Z'),
       spot('AX', 3, '2026-03-02T14:30:00.200Z'),
     ];
-    const plan = planBatch(b);
+    const plan = planBatch([b]);
     expect(applied(b)).toEqual([1, 3]);
     expect(plan.conflated).toBe(2);
-    expect(plan.records[3]!.spot).toEqual({ underlying: 'AX', tsMs: Date.parse('2026-03-02T14:30:00.200Z') });
+    expect(plan.spotOf[3]).toBe('AX');
+    expect(plan.tsMs[3]).toBe(Date.parse('2026-03-02T14:30:00.200Z'));
+    // each record is decoded once, here, and the engine is handed the result
+    expect(plan.decoded(3, b[3]!.value)).toEqual({ ok: true, msg: JSON.parse(b[3]!.value) });
   });
 
   it('never conflates across another input of the same underlying: a trade sees the spot before it', () => {
@@ -95,5 +98,38 @@ describe('planBatch (spot conflation)', () => {
       spot('AX', 2, '2026-03-02T14:30:00.100Z'),
     ];
     expect(applied(b)).toEqual([1, 2]);
+  });
+
+  it('an invalid record changes nothing, so it ends no run (and is applied, to be rejected)', () => {
+    const badTrade: BusRecord = {
+      topic: 'trades',
+      key: 'AX',
+      value: JSON.stringify({ type: 'trade', underlying: 'AX' }),
+    };
+    const b = [
+      spot('AX', 1, '2026-03-02T14:30:00.000Z'),
+      badTrade,
+      spot('AX', 2, '2026-03-02T14:30:00.100Z'),
+    ];
+    const plan = planBatch([b]);
+    expect(applied(b)).toEqual([1, 2]);
+    expect(plan.decoded(1, b[1]!.value).ok).toBe(false);
+  });
+
+  it('reads spots in any key order or spacing the same way (the hand reader only takes the canonical form)', () => {
+    const odd: BusRecord = {
+      topic: 'spots',
+      key: 'AX',
+      value: '{ "ts": "2026-03-02T14:30:00.050Z", "price": 1.5, "underlying": "AX", "type": "spot" }',
+    };
+    const b = [spot('AX', 1, '2026-03-02T14:30:00.000Z'), odd, spot('AX', 2, '2026-03-02T14:30:00.100Z')];
+    const plan = planBatch([b]);
+    expect(applied(b)).toEqual([2]);
+    expect(plan.spotOf[1]).toBe('AX');
+    expect(plan.tsMs[1]).toBe(Date.parse('2026-03-02T14:30:00.050Z'));
+    expect(plan.decoded(1, odd.value)).toEqual({
+      ok: true,
+      msg: { type: 'spot', underlying: 'AX', price: 1.5, ts: '2026-03-02T14:30:00.050Z' },
+    });
   });
 });

@@ -111,14 +111,14 @@ describe('EngineRunner', () => {
       bus,
       publishIntervalMs: 100,
       now: () => now,
-      observer: { input: (t, o) => observed.push(`${t}:${o}`) },
+      observer: { input: (t, o, n = 1) => observed.push(`${t}:${o}:${n}`) },
     });
     await runner.start();
     // First batch: the flush is due at once (nothing published yet).
     await bus.publish('spots', [spot('AX', 10, now - 5), spot('AX', 11, now - 4), spot('AX', 101, now - 3)]);
     await bus.idle();
     expect(engine.ingested.length).toBe(1); // only the newest AX spot was applied
-    expect(observed).toEqual(['spot:accepted', 'spot:accepted']); // the two conflated ones still count
+    expect(observed).toEqual(['spot:accepted:2']); // the two conflated ones still count, in one call
     expect(out.filter((r) => r.topic === 'alerts').map((r) => r.key)).toEqual(['L-AX']);
     expect(out.filter((r) => r.topic === 'exposures').map((r) => r.key)).toEqual(['underlying=AX', 'firm']);
     // Two more batches inside the interval: held, then one publication with the latest values.
@@ -268,7 +268,18 @@ describe('EngineRunner', () => {
     await runner.handle([
       { topic: 'spots', ...spot('AX', 1, 1000) },
       { topic: 'spots', ...spot('BX', 1, 1000) },
-      { topic: 'trades', key: 'AX', value: '{"type":"trade-ish"}' },
+      {
+        topic: 'trades',
+        key: 'AX',
+        value: JSON.stringify({
+          type: 'trade',
+          tradeId: 'T-1',
+          version: 1,
+          action: 'cancel',
+          underlying: 'AX',
+          ts: '2026-03-02T14:30:00Z',
+        }),
+      },
       { topic: 'spots', ...spot('CX', 1, 1000) },
       { topic: 'spots', ...spot('AX', 2, 1001) },
       { topic: 'spots', ...spot('DX', 2, 1001) },

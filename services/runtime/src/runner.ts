@@ -14,10 +14,9 @@
 // with a promise of that flush's acknowledgement, and the transport commits after it. A failed
 // flush keeps its events and exposures queued and is retried one interval later.
 import { INPUT_TOPICS, TOPICS } from '@keelson/shared-types';
-import type { AlertMsg, ExposureMsg, RejectedMsg, StaleFeedMsg } from '@keelson/shared-types';
+import type { AlertMsg, DecodeResult, ExposureMsg, RejectedMsg, StaleFeedMsg } from '@keelson/shared-types';
 import type { Bus, BusRecord, OutRecord } from '@keelson/bus';
 import { planBatch } from './conflate.ts';
-import type { PlannedRecord } from './conflate.ts';
 import { LatencyWindow } from './latency.ts';
 
 export type Signal = AlertMsg | StaleFeedMsg;
@@ -34,9 +33,10 @@ export interface ExposureSource {
 
 /** The part of RiskEngine the runner drives (structural, so tests can hand in a fake). */
 export interface RunnerEngine {
-  ingest(raw: string, source: string): IngestOutcome;
+  /** `decoded` is decodeInput(raw), done once by the batch plan. */
+  ingest(raw: string, source: string, decoded?: DecodeResult): IngestOutcome;
   /** Optional, preferred when present: a run of spots applied as one move (RiskEngine.ingestSpots). */
-  ingestSpots?(items: readonly { raw: string; source: string }[]): IngestOutcome[];
+  ingestSpots?(items: readonly { raw: string; source: string; decoded?: DecodeResult }[]): IngestOutcome[];
   revalueAll(): void;
   drain(): { exposures: ExposureMsg[]; alerts: Signal[]; rejected: RejectedMsg[] };
   /**
@@ -89,7 +89,7 @@ export interface RunnerOptions {
   now?: () => number;
   metrics?: RunnerMetrics;
   /** The engine's observer: conflated spots are counted on it as accepted inputs. */
-  observer?: { input?(type: string, outcome: IngestOutcome): void };
+  observer?: { input?(type: string, outcome: IngestOutcome, count?: number): void };
   /** After each acknowledged publish: feeds the SSE hub and the alert log. */
   onPublished?: (p: Published) => void;
   /** Failures that are not the input's fault (an engine bug, a decay run that threw). */
@@ -113,10 +113,40 @@ export interface RunnerStats {
   internalErrors: number;
 }
 
-interface PendingTick {
-  underlying: string;
-  tickTsMs: number;
-  busTsMs: number | undefined;
+/**
+ * Accepted spots of one applied batch, or waiting for a flush: parallel arrays rather than an
+ * object per tick (there are tens of thousands a second).
+ */
+class TickLog {
+  underlying: string[] = [];
+  tickTsMs: number[] = [];
+  /** NaN: the transport gave no timestamp. */
+  busTsMs: number[] = [];
+
+  get length(): number {
+    return this.underlying.length;
+  }
+
+  push(underlying: string, tickTsMs: number, busTsMs: number): void {
+    this.underlying.push(underlying);
+    this.tickTsMs.push(tickTsMs);
+    this.busTsMs.push(busTsMs);
+  }
+
+  /** Appends the ticks of `from` whose underlying is in `keep`. */
+  takeFrom(from: TickLog, keep: ReadonlySet<string>): void {
+    for (let i = 0; i < from.length; i++) {
+      const u = from.underlying[i] as string;
+      if (keep.has(u)) this.push(u, from.tickTsMs[i] as number, from.busTsMs[i] as number);
+    }
+  }
+
+  /** `before` first, then these. */
+  prepend(before: TickLog): void {
+    this.underlying = before.underlying.concat(this.underlying);
+    this.tickTsMs = before.tickTsMs.concat(this.tickTsMs);
+    this.busTsMs = before.busTsMs.concat(this.busTsMs);
+  }
 }
 
 export class EngineRunner {
@@ -136,7 +166,7 @@ export class EngineRunner {
   private readonly now: () => number;
   private pending = new Map<string, PendingExposure>();
   /** Ticks whose exposures wait in `pending`; their latency is taken when that flush is acked. */
-  private pendingTicks: PendingTick[] = [];
+  private pendingTicks = new TickLog();
   private lastFlushAt = Number.NEGATIVE_INFINITY;
   private flushTimer: NodeJS.Timeout | null = null;
   private decayTimer: NodeJS.Timeout | null = null;
@@ -203,7 +233,7 @@ export class EngineRunner {
   /** The batch handler the bus calls. Exposed for transports that deliver batches themselves. */
   async handle(batch: BusRecord[]): Promise<void> {
     this.settle();
-    const { out, ticks } = this.applyBatch(batch);
+    const { out, ticks } = this.applyBatch([batch]);
     this.collect(out, ticks);
     await this.release();
   }
@@ -243,33 +273,34 @@ export class EngineRunner {
   /** Applies the batches kept by handleUntilAcked, as one. */
   private settle(): void {
     if (this.buffered.length === 0) return;
-    const batch = this.buffered.length === 1 ? (this.buffered[0] as BusRecord[]) : this.buffered.flat();
+    const chunks = this.buffered;
     this.buffered = [];
-    const { out, ticks } = this.applyBatch(batch);
+    const { out, ticks } = this.applyBatch(chunks);
     this.collect(out, ticks);
   }
 
-  private applyBatch(batch: BusRecord[]): { out: Drained; ticks: PendingTick[] } {
+  /** Applies the records of `chunks`, in order, as one batch. */
+  private applyBatch(chunks: readonly (readonly BusRecord[])[]): { out: Drained; ticks: TickLog } {
     const t0 = performance.now();
-    const plan = planBatch(batch);
-    const ticks: PendingTick[] = [];
+    const plan = planBatch(chunks);
+    const ticks = new TickLog();
     this.counters.batches++;
-    this.counters.records += batch.length;
+    this.counters.records += plan.size;
     this.counters.conflated += plan.conflated;
     // Ingest and drain without an await in between: the decay timer cannot interleave.
     const internal: RejectedMsg[] = [];
-    const counted = (outcome: IngestOutcome, p: PlannedRecord) => {
+    const counted = (outcome: IngestOutcome, i: number, r: BusRecord) => {
       if (outcome === 'accepted') this.counters.accepted++;
       else if (outcome === 'duplicate') this.counters.duplicates++;
       else this.counters.rejected++;
-      if (outcome === 'accepted' && p.spot)
-        ticks.push({ underlying: p.spot.underlying, tickTsMs: p.spot.tsMs, busTsMs: p.record.timestamp });
+      const u = plan.spotOf[i];
+      if (outcome === 'accepted' && u !== undefined)
+        ticks.push(u, plan.tsMs[i] as number, r.timestamp ?? Number.NaN);
     };
-    const one = (p: PlannedRecord) => {
-      const r = p.record;
+    const one = (i: number, r: BusRecord) => {
       let outcome: IngestOutcome;
       try {
-        outcome = this.engine.ingest(r.value, originOf(r));
+        outcome = this.engine.ingest(r.value, originOf(r), plan.decoded(i, r.value));
       } catch (err) {
         // An engine fault must not stall the partition nor lose the record: dead-letter it.
         this.counters.internalErrors++;
@@ -283,47 +314,57 @@ export class EngineRunner {
         });
         outcome = 'rejected';
       }
-      counted(outcome, p);
+      counted(outcome, i, r);
     };
     // Consecutive spots go to the engine as one run when it can take one (see ingestSpots).
-    const run: PlannedRecord[] = [];
+    const runIdx: number[] = [];
+    const runRec: BusRecord[] = [];
     const endRun = () => {
-      if (run.length === 0) return;
+      if (runIdx.length === 0) return;
       const grouped = this.engine.ingestSpots;
-      if (run.length === 1 || !grouped) for (const p of run) one(p);
-      else {
-        let outcomes: IngestOutcome[] | undefined;
+      let outcomes: IngestOutcome[] | undefined;
+      if (runIdx.length > 1 && grouped) {
         try {
           outcomes = grouped.call(
             this.engine,
-            run.map((p) => ({ raw: p.record.value, source: originOf(p.record) })),
+            runIdx.map((i, k) => {
+              const r = runRec[k] as BusRecord;
+              return { raw: r.value, source: originOf(r), decoded: plan.decoded(i, r.value) };
+            }),
           );
         } catch {
           // Which record failed is unknown: apply them one by one, so that only the faulty one is
           // dead-lettered (the ones already applied are the same spots again: no change).
         }
-        if (outcomes)
-          for (let k = 0; k < run.length; k++) counted(outcomes[k] as IngestOutcome, run[k] as PlannedRecord);
-        else for (const p of run) one(p);
       }
-      run.length = 0;
+      if (outcomes)
+        for (let k = 0; k < runIdx.length; k++)
+          counted(outcomes[k] as IngestOutcome, runIdx[k] as number, runRec[k] as BusRecord);
+      else for (let k = 0; k < runIdx.length; k++) one(runIdx[k] as number, runRec[k] as BusRecord);
+      runIdx.length = 0;
+      runRec.length = 0;
     };
-    for (const p of plan.records) {
-      if (p.spot) this.counters.spots++;
-      if (!p.apply) {
-        // a superseded spot: accepted, and its latency is its successor's publication
-        this.opts.observer?.input?.('spot', 'accepted');
-        counted('accepted', p);
-        continue;
+    let i = 0;
+    for (const chunk of chunks)
+      for (let k = 0; k < chunk.length; k++, i++) {
+        const r = chunk[k] as BusRecord;
+        const isSpot = plan.spotOf[i] !== undefined;
+        if (isSpot) this.counters.spots++;
+        if (plan.apply[i] === 0) {
+          // a superseded spot: accepted, and its latency is its successor's publication
+          counted('accepted', i, r);
+          continue;
+        }
+        if (isSpot) {
+          runIdx.push(i);
+          runRec.push(r);
+          continue;
+        }
+        endRun();
+        one(i, r);
       }
-      if (p.spot) {
-        run.push(p);
-        continue;
-      }
-      endRun();
-      one(p);
-    }
     endRun();
+    if (plan.conflated > 0) this.opts.observer?.input?.('spot', 'accepted', plan.conflated);
     const out = this.drainEngine();
     this.opts.metrics?.batchProcessed((performance.now() - t0) / 1000);
     if (internal.length) out.rejected = [...out.rejected, ...internal];
@@ -361,7 +402,7 @@ export class EngineRunner {
       this.settle();
       this.engine.revalueAll();
       this.counters.decayRuns++;
-      this.collect(this.drainEngine(), []);
+      this.collect(this.drainEngine(), new TickLog());
       await this.release();
     } catch (err) {
       this.counters.internalErrors++;
@@ -376,7 +417,7 @@ export class EngineRunner {
   }
 
   /** Takes a drain's outputs: exposures into the pending map, events into the queue. */
-  private collect(out: Drained, ticks: PendingTick[]): void {
+  private collect(out: Drained, ticks: TickLog): void {
     // Re-insert so that Map order tracks the latest change and a flush is in change order.
     const pending = this.pending;
     const touched = ticks.length ? new Set<string>() : null;
@@ -393,7 +434,7 @@ export class EngineRunner {
         if (touched && c.underlying !== undefined) touched.add(c.underlying);
       }
     // Only ticks that moved a node of their own underlying have a publication to wait for.
-    if (touched) for (const t of ticks) if (touched.has(t.underlying)) this.pendingTicks.push(t);
+    if (touched) this.pendingTicks.takeFrom(ticks, touched);
     for (const a of out.alerts) this.queuedAlerts.push(a);
     for (const r of out.rejected) this.queuedRejected.push(r);
   }
@@ -475,7 +516,7 @@ export class EngineRunner {
     const entries = [...this.pending.values()];
     const ticks = this.pendingTicks;
     this.pending = new Map();
-    this.pendingTicks = [];
+    this.pendingTicks = new TickLog();
     // A source is read now, at its latest value: the value every exposure it superseded would have
     // been replaced by anyway (latest wins). Message objects are only built for a listener.
     const wantObjects = this.opts.onPublished !== undefined;
@@ -499,7 +540,7 @@ export class EngineRunner {
         const key = isMsg(e) ? e.nodeKey : e.key;
         if (!this.pending.has(key)) this.pending.set(key, e);
       }
-      this.pendingTicks = ticks.concat(this.pendingTicks);
+      this.pendingTicks.prepend(ticks);
       this.retryLater(waiters);
       throw err;
     }
@@ -511,11 +552,13 @@ export class EngineRunner {
       );
     const metrics = this.opts.metrics;
     if (this.recordLatency)
-      for (const t of ticks) {
+      for (let i = 0; i < ticks.length; i++) {
+        const tickTs = ticks.tickTsMs[i] as number;
+        const busTs = ticks.busTsMs[i] as number;
         // A tick stamped by a clock ahead of ours would show a negative latency: count it as zero.
-        this.latency.record(Math.max(0, wall - t.tickTsMs));
-        metrics?.tickToPublish(t.tickTsMs, wall);
-        if (t.busTsMs !== undefined) metrics?.busToPublish(t.busTsMs, wall);
+        this.latency.record(Math.max(0, wall - tickTs));
+        metrics?.tickToPublish(tickTs, wall);
+        if (!Number.isNaN(busTs)) metrics?.busToPublish(busTs, wall);
       }
     this.counters.exposuresPublished += entries.length;
     this.opts.onPublished?.({ exposures, alerts: [], rejected: [] });
