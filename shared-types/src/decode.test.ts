@@ -55,7 +55,24 @@ describe('spot fast path', () => {
       return validateInput(obj);
     };
     const name = fc.oneof(
-      fc.constantFrom('NIMBUS', 'A', 'A/B', 'A"B', 'A\\B', 'é', '\u0001', ''),
+      fc.constantFrom(
+        'NIMBUS',
+        'A',
+        'A/B',
+        'A=B',
+        'A B',
+        'A\u00a0B',
+        'A\u2028B',
+        '\ufeffA',
+        'A\u3000',
+        'x'.repeat(64),
+        'x'.repeat(65),
+        'A"B',
+        'A\\B',
+        'é',
+        '\u0001',
+        '',
+      ),
       fc.string(),
     );
     const price = fc.oneof(
@@ -103,5 +120,20 @@ describe('spot fast path', () => {
         msg: { type: 'spot', underlying: 'A', price: 150, ts: '2026-03-02T14:30:00Z' },
       },
     );
+  });
+
+  it('reads plain decimal prices of up to 15 digits exactly as Number() does (ECMAScript, correctly rounded)', () => {
+    let seed = 99;
+    const r = () => (seed = (Math.imul(seed, 1103515245) + 12345) >>> 0) / 2 ** 32;
+    for (let n = 0; n < 50_000; n++) {
+      const digits = 1 + Math.floor(r() * 15);
+      let d = String(1 + Math.floor(r() * 9));
+      for (let k = 1; k < digits; k++) d += String(Math.floor(r() * 10));
+      const point = Math.floor(r() * digits);
+      const text = point === 0 ? d : `${d.slice(0, point)}.${d.slice(point)}`;
+      const raw = `{"type":"spot","underlying":"A","price":${text},"ts":"2026-03-02T14:30:00Z"}`;
+      const got = decodeInput(raw);
+      expect(got.ok && got.msg.type === 'spot' && got.msg.price, text).toBe(Number(text));
+    }
   });
 });

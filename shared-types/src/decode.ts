@@ -70,6 +70,11 @@ const SPOT_HEAD = '{"type":"spot","underlying":"';
 const PRICE_KEY = '","price":';
 const TS_KEY = ',"ts":"';
 
+/** raw.startsWith(lit, at), several times faster in V8 as a slice compared whole. */
+function hasAt(raw: string, at: number, lit: string): boolean {
+  return raw.slice(at, at + lit.length) === lit;
+}
+
 /** What scanSpot read: reused from record to record (nothing is allocated per record but the name). */
 export interface SpotScan {
   underlying: string;
@@ -87,29 +92,29 @@ export interface SpotScan {
  * plus the validator accept too, with the same message (a test holds the two to it).
  */
 export function scanSpot(raw: string, out: SpotScan): boolean {
-  if (!raw.startsWith(SPOT_HEAD)) return false;
+  if (!hasAt(raw, 0, SPOT_HEAD)) return false;
   const uStart = SPOT_HEAD.length;
   const uEnd = raw.indexOf('"', uStart);
-  if (uEnd < 0 || !raw.startsWith(PRICE_KEY, uEnd)) return false;
+  if (uEnd < 0 || !hasAt(raw, uEnd, PRICE_KEY)) return false;
   const pStart = uEnd + PRICE_KEY.length;
   const pEnd = raw.indexOf(',', pStart);
-  if (pEnd < 0 || !raw.startsWith(TS_KEY, pEnd)) return false;
+  if (pEnd < 0 || !hasAt(raw, pEnd, TS_KEY)) return false;
   const tStart = pEnd + TS_KEY.length;
   const tEnd = raw.length - 2;
   if (tEnd < tStart || raw.charCodeAt(tEnd) !== 34 || raw.charCodeAt(tEnd + 1) !== 125) return false;
+  // The name: NAME's rule (1 to 64 code units, no \s, / or =) checked in place.
+  if (uEnd - uStart < 1 || uEnd - uStart > 64) return false;
   for (let i = uStart; i < uEnd; i++) {
     const c = raw.charCodeAt(i);
     // JSON strings hold no raw control characters; an escape is left to JSON.parse
-    if (c < 0x20 || c === 92) return false;
+    if (c < 0x20 || c === 92 || c === 47 || c === 61 || isJsSpaceFrom20(c)) return false;
   }
-  if (!isJsonNumber(raw, pStart, pEnd)) return false;
+  const price = jsonNumberAt(raw, pStart, pEnd);
+  if (!(price > 0) || !Number.isFinite(price)) return false;
   // ts: contract timestamps are plain ASCII, so a range contractTsMsAt accepts has no escape
   const tsMs = contractTsMsAt(raw, tStart, tEnd);
   if (Number.isNaN(tsMs)) return false;
-  const price = Number(raw.slice(pStart, pEnd));
-  if (!(price > 0) || !Number.isFinite(price)) return false;
   const underlying = raw.slice(uStart, uEnd);
-  if (!NAME.test(underlying)) return false;
   out.underlying = underlying;
   out.price = price;
   out.tsMs = tsMs;
@@ -135,25 +140,68 @@ function isDigitAt(s: string, k: number): boolean {
   return c >= 48 && c <= 57;
 }
 
-/** RFC 8259 section 6: -? (0 | [1-9][0-9]*) (. [0-9]+)? ([eE] [+-]? [0-9]+)? over s[from..to). */
-function isJsonNumber(s: string, from: number, to: number): boolean {
+const POW10 = [
+  1, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19,
+  1e20, 1e21, 1e22,
+];
+
+/**
+ * The JSON number (RFC 8259 section 6: -? (0 | [1-9][0-9]*) (. [0-9]+)? ([eE] [+-]? [0-9]+)?)
+ * written in s[from..to), or NaN when that is not one. A plain decimal of at most 15 digits is
+ * m / 10^k with m and 10^k exact doubles, which IEEE division rounds correctly, the value Number()
+ * gives (Clinger's fast path); anything else is read by Number().
+ */
+function jsonNumberAt(s: string, from: number, to: number): number {
   let i = from;
-  if (s.charCodeAt(i) === 45) i++;
-  if (i >= to || !isDigitAt(s, i)) return false;
+  const negative = s.charCodeAt(i) === 45;
+  if (negative) i++;
+  if (i >= to || !isDigitAt(s, i)) return Number.NaN;
+  let m = 0;
+  let digits = 0;
+  let scale = 0;
   if (s.charCodeAt(i) === 48) i++;
-  else while (i < to && isDigitAt(s, i)) i++;
+  else
+    while (i < to && isDigitAt(s, i)) {
+      m = m * 10 + (s.charCodeAt(i++) - 48);
+      digits++;
+    }
   if (i < to && s.charCodeAt(i) === 46) {
     i++;
-    if (i >= to || !isDigitAt(s, i)) return false;
-    while (i < to && isDigitAt(s, i)) i++;
+    if (i >= to || !isDigitAt(s, i)) return Number.NaN;
+    while (i < to && isDigitAt(s, i)) {
+      m = m * 10 + (s.charCodeAt(i++) - 48);
+      digits++;
+      scale++;
+    }
   }
+  let plain = true;
   if (i < to && (s.charCodeAt(i) === 101 || s.charCodeAt(i) === 69)) {
+    plain = false;
     i++;
     if (i < to && (s.charCodeAt(i) === 43 || s.charCodeAt(i) === 45)) i++;
-    if (i >= to || !isDigitAt(s, i)) return false;
+    if (i >= to || !isDigitAt(s, i)) return Number.NaN;
     while (i < to && isDigitAt(s, i)) i++;
   }
-  return i === to;
+  if (i !== to) return Number.NaN;
+  if (!plain || digits > 15) return Number(s.slice(from, to));
+  const v = m / (POW10[scale] as number);
+  return negative ? -v : v;
+}
+
+/** JSON's whitespace is not the question here: the characters JavaScript's \s matches at or above U+0020. */
+function isJsSpaceFrom20(c: number): boolean {
+  return (
+    c === 0x20 ||
+    c === 0xa0 ||
+    c === 0x1680 ||
+    (c >= 0x2000 && c <= 0x200a) ||
+    c === 0x2028 ||
+    c === 0x2029 ||
+    c === 0x202f ||
+    c === 0x205f ||
+    c === 0x3000 ||
+    c === 0xfeff
+  );
 }
 
 /** Parse one raw record or tape line: JSON.parse, then validate. */

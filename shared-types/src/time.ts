@@ -53,6 +53,13 @@ function digits(s: string, at: number, n: number): number {
   return v;
 }
 
+/** Two digits at s[at], or -1. */
+function two(s: string, at: number): number {
+  const a = s.charCodeAt(at) - ZERO;
+  const b = s.charCodeAt(at + 1) - ZERO;
+  return a >= 0 && a <= 9 && b >= 0 && b <= 9 ? a * 10 + b : -1;
+}
+
 /** Days from 1970-01-01 to a proleptic Gregorian date (any year 0..9999, no two-digit-year rule). */
 function daysFromCivil(y: number, m: number, d: number): number {
   const yy = m <= 2 ? y - 1 : y;
@@ -83,21 +90,28 @@ export function contractTsMsAt(s: string, from: number, to: number): number {
   if (from < 0 || to > s.length) return Number.NaN;
   if (len < 20 || len > 24 || len === 21 || s.charCodeAt(to - 1) !== 90 /* Z */) return Number.NaN;
   const f = from;
-  if (s[f + 4] !== '-' || s[f + 7] !== '-' || s[f + 10] !== 'T' || s[f + 13] !== ':' || s[f + 16] !== ':')
+  if (
+    s.charCodeAt(f + 4) !== 45 /* - */ ||
+    s.charCodeAt(f + 7) !== 45 ||
+    s.charCodeAt(f + 10) !== 84 /* T */ ||
+    s.charCodeAt(f + 13) !== 58 /* : */ ||
+    s.charCodeAt(f + 16) !== 58
+  )
     return Number.NaN;
-  const hour = digits(s, f + 11, 2);
-  const minute = digits(s, f + 14, 2);
-  const second = digits(s, f + 17, 2);
+  const hour = two(s, f + 11);
+  const minute = two(s, f + 14);
+  const second = two(s, f + 17);
   let ms = 0;
   if (len > 20) {
-    if (s[f + 19] !== '.') return Number.NaN;
+    if (s.charCodeAt(f + 19) !== 46 /* . */) return Number.NaN;
     const frac = digits(s, f + 20, len - 21);
     if (frac < 0) return Number.NaN;
     ms = frac * (len === 22 ? 100 : len === 23 ? 10 : 1);
   }
   if (hour < 0 || minute < 0 || second < 0 || hour > 23 || minute > 59 || second > 59) return Number.NaN;
   let days: number;
-  if (lastDate.length === 10 && s.startsWith(lastDate, f)) days = lastDateDays;
+  // (a slice compared whole: several times faster in V8 than startsWith)
+  if (lastDate.length === 10 && s.slice(f, f + 10) === lastDate) days = lastDateDays;
   else {
     const year = digits(s, f, 4);
     const month = digits(s, f + 5, 2);

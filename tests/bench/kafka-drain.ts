@@ -1,19 +1,23 @@
 // A bare kafkajs consumer draining a topic, in a process of its own so that nothing of Keelson
 // is loaded unless asked: the kafka bench's reference for the transport's ceiling.
 //   node --import tsx tests/bench/kafka-drain.ts BROKERS TOPIC TOTAL MODE
-// MODE: `bare` (count the messages), `json` (also JSON.parse each value), `keelson-decoder`
-// (count, with Keelson's fetch decoder installed first). Prints one JSON line: { rate, parsed }.
-import kafkajs from 'kafkajs';
+// MODE: `bare` (count the messages), `json` (also JSON.parse each value), `keelson-paths`
+// (count, on Keelson's replacements of kafkajs's hot paths, kafkajs-fast-paths.ts). Prints one
+// JSON line: { rate, parsed }.
+export {};
 
 const [brokers, topic, totalArg, mode] = process.argv.slice(2);
-if (!brokers || !topic || !totalArg || !['bare', 'json', 'keelson-decoder'].includes(mode ?? '')) {
-  console.error('usage: kafka-drain.ts BROKERS TOPIC TOTAL bare|json|keelson-decoder');
+if (!brokers || !topic || !totalArg || !['bare', 'json', 'keelson-paths'].includes(mode ?? '')) {
+  console.error('usage: kafka-drain.ts BROKERS TOPIC TOTAL bare|json|keelson-paths');
   process.exit(2);
 }
-if (mode === 'keelson-decoder') {
-  const { installFetchDecoder } = await import('../../services/bus/src/kafka-fetch-decoder.ts');
-  if (!installFetchDecoder()) throw new Error('kafka-drain: the fetch decoder could not be installed');
+// Before kafkajs loads, as in the engine.
+if (mode === 'keelson-paths') {
+  const { kafkajsFastPaths } = await import('../../services/bus/src/kafkajs-fast-paths.ts');
+  if (Object.values(kafkajsFastPaths).some((w) => w !== 'keelson'))
+    throw new Error(`kafka-drain: not all fast paths are in place: ${JSON.stringify(kafkajsFastPaths)}`);
 }
+const { default: kafkajs } = await import('kafkajs');
 const total = Number(totalArg);
 const kafka = new kafkajs.Kafka({
   clientId: 'keelson-bench-drain',

@@ -4,6 +4,8 @@
 // after the handler has resolved, and the runner's handler resolves only once every output that
 // depends on the batch has been acknowledged by the broker. A process that dies in between leaves
 // the batch uncommitted, so whoever owns the partition next reads it again.
+// First, before kafkajs loads (kafkajs-fast-paths.ts says why).
+import { kafkajsFastPaths } from './kafkajs-fast-paths.ts';
 import kafkajs from 'kafkajs';
 import type {
   Admin,
@@ -18,24 +20,9 @@ import type {
 import type { Bus, BusRecord, OutRecord } from './bus.ts';
 import { describeKafkaConfig, KafkaConfigError, resolveConnection } from './kafka-config.ts';
 import { javaPartition, memoizedJavaPartitioner } from './kafka-partition.ts';
-import { installFetchDecoder } from './kafka-fetch-decoder.ts';
-import { installProduceEncoder } from './kafka-produce-encoder.ts';
 import type { KafkaConnection, KafkaSasl } from './kafka-config.ts';
 
 const { Kafka, Partitioners, logLevel, CompressionTypes } = kafkajs;
-
-// Before any producer of this process builds a request (kafka-produce-encoder.ts says why);
-// KEELSON_PRODUCE_ENCODER=kafkajs keeps kafkajs's own encoder.
-const produceEncoder =
-  process.env.KEELSON_PRODUCE_ENCODER === 'kafkajs'
-    ? 'kafkajs'
-    : installProduceEncoder()
-      ? 'keelson'
-      : 'kafkajs';
-// Likewise before any consumer of this process decodes a fetch (kafka-fetch-decoder.ts);
-// KEELSON_FETCH_DECODER=kafkajs keeps kafkajs's own decoder.
-const fetchDecoder =
-  process.env.KEELSON_FETCH_DECODER === 'kafkajs' ? 'kafkajs' : installFetchDecoder() ? 'keelson' : 'kafkajs';
 
 /** The pino-shaped subset the transport logs through (pino's own logger fits). */
 export interface KafkaBusLogger {
@@ -338,8 +325,7 @@ export class KafkaBus implements Bus {
         kafka: describeKafkaConfig(this.connection),
         topicPrefix: this.topicPrefix,
         groupId: this.groupId,
-        produceEncoder,
-        fetchDecoder,
+        kafkajsFastPaths,
       },
       'kafka bus configured',
     );
