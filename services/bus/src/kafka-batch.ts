@@ -7,10 +7,9 @@
 // method) is kafkajs's own: the replacement shares Batch's prototype. It must be in kafkajs's
 // module cache before kafkajs's consumer loads (kafkajs-fast-paths.ts is imported ahead of
 // kafkajs); if kafkajs was loaded first, or is another version, it stays out.
-import { createRequire } from 'node:module';
+import { isKnownKafkajs, kafkajsRequire, kafkajsRoot } from './kafkajs-internals.ts';
 
-const require = createRequire(import.meta.url);
-const KAFKAJS_VERSION = '2.2.4';
+const require = kafkajsRequire;
 
 interface Message {
   offset: string;
@@ -78,10 +77,6 @@ export function fastBatchClass(Batch: { prototype: object }, Long: LongClass, fi
   return FastBatch as unknown as new (topic: string, fetchedOffset: unknown, data: PartitionData) => object;
 }
 
-function kafkajsRoot(): string {
-  return require.resolve('kafkajs/package.json').replace(/package\.json$/, '');
-}
-
 let installed: boolean | undefined;
 
 /** True when the fast Batch is in place; false when kafkajs's consumer was loaded before, or kafkajs is another version. */
@@ -89,8 +84,7 @@ export function installFastBatch(): boolean {
   if (installed !== undefined) return installed;
   installed = false;
   const root = kafkajsRoot();
-  const pkg = require(root + 'package.json') as { version: string };
-  if (pkg.version !== KAFKAJS_VERSION) return false;
+  if (!isKnownKafkajs()) return false;
   if (require.cache[require.resolve(root + 'src/consumer/consumerGroup.js')]) return false;
   const path = require.resolve(root + 'src/consumer/batch.js');
   const Batch = require(path) as { prototype: object };

@@ -2,6 +2,7 @@ import { createRequire } from 'node:module';
 import { describe, expect, it } from 'vitest';
 import { decodePlainBatch, fastDecodeMessages, kafkajsDecodeMessages } from './kafka-fetch-decoder.ts';
 import type { FetchedMessage, KafkajsDecoder } from './kafka-fetch-decoder.ts';
+import { rng, text } from './testing/random.ts';
 
 // The reference is kafkajs 2.2.4 itself: record sets are written with its own RecordBatch, Record
 // and MessageSet encoders and decoded by its own decodeMessages; the fast decoder must return the
@@ -29,22 +30,6 @@ const recordBatchDecoder = require(root + 'src/protocol/recordBatch/v0/decoder.j
 
 const original = kafkajsDecodeMessages();
 const fast = fastDecodeMessages(original, recordBatchDecoder, Decoder);
-
-function rng(seed: number): () => number {
-  return () => {
-    seed = (Math.imul(seed, 1103515245) + 12345) >>> 0;
-    return seed / 2 ** 32;
-  };
-}
-
-function text(r: () => number, len: number): string {
-  let s = '';
-  for (let i = 0; i < len; i++) {
-    const c = r();
-    s += c < 0.85 ? String.fromCharCode(32 + Math.floor(r() * 95)) : c < 0.95 ? 'é' : '🦊';
-  }
-  return s;
-}
 
 interface BatchSpec {
   firstOffset: bigint;

@@ -14,10 +14,9 @@
 // a batch whose bytes do not parse as expected. It is installed into kafkajs's module cache, so it
 // applies to kafkajs 2.2.4 only (its internal layout), and only if no fetch response was decoded
 // before.
-import { createRequire } from 'node:module';
+import { isKnownKafkajs, kafkajsRequire, kafkajsRoot } from './kafkajs-internals.ts';
 
-const require = createRequire(import.meta.url);
-const KAFKAJS_VERSION = '2.2.4';
+const require = kafkajsRequire;
 
 /** kafkajs's Decoder, the part used here. */
 export interface KafkajsDecoder {
@@ -77,6 +76,48 @@ const EXACT = 2 ** 52;
 /** Not the plain case: the batch goes to kafkajs's decoder. */
 const NOT_PLAIN = null;
 
+/** Read position of the varint readers below (one decoder runs at a time: it never awaits). */
+let cursor = 0;
+
+/** A zigzag varint as kafkajs's readVarInt reads it (32-bit), at `cursor`; NaN past `end`. */
+function zigzag32(buf: Buffer, end: number): number {
+  let shift = 0;
+  let raw = 0;
+  let b: number;
+  do {
+    if (cursor >= end) return Number.NaN;
+    b = buf[cursor++] as number;
+    raw += (b & 0x7f) << shift;
+    shift += 7;
+  } while (b >= 0x80);
+  return (raw >>> 1) ^ -(raw & 1);
+}
+
+/** A zigzag varlong of at most 7 bytes (49 bits, exact as a double); NaN if longer or past `end`. */
+function zigzag49(buf: Buffer, end: number): number {
+  let raw = 0;
+  let scale = 1;
+  let bytes = 0;
+  let b: number;
+  do {
+    if (cursor >= end || ++bytes > 7) return Number.NaN;
+    b = buf[cursor++] as number;
+    raw += (b & 0x7f) * scale;
+    scale *= 128;
+  } while (b >= 0x80);
+  return raw % 2 === 1 ? -(raw + 1) / 2 : raw / 2;
+}
+
+/** Varint-length bytes (null for length -1); undefined when they do not fit before `end`. */
+function varBytes(buf: Buffer, end: number): Buffer | null | undefined {
+  const n = zigzag32(buf, end);
+  if (n === -1) return null;
+  if (Number.isNaN(n) || n < 0 || cursor + n > end) return undefined;
+  const bytes = buf.subarray(cursor, cursor + n);
+  cursor += n;
+  return bytes;
+}
+
 /**
  * The records of one plain record batch starting at `start` of `buf` (its total length known to
  * be in the buffer), or null when the batch is not the plain case.
@@ -117,60 +158,18 @@ export function decodePlainBatch(buf: Buffer, start: number, end: number): Fetch
   for (let i = 0; i < count; i++) {
     // Record: length varint, attributes int8, timestampDelta varlong, offsetDelta varint,
     // key varint bytes, value varint bytes, headers varint count.
-    let b: number;
-    let shift = 0;
-    let raw = 0;
-    do {
-      if (p >= end) return NOT_PLAIN;
-      b = buf[p++] as number;
-      raw += (b & 0x7f) << shift;
-      shift += 7;
-    } while (b >= 0x80);
-    const length = (raw >>> 1) ^ -(raw & 1);
-    const recordEnd = p + length;
-    if (length < 0 || recordEnd > end) return NOT_PLAIN;
-    const recordAttributes = buf.readInt8(p++);
-    // timestampDelta: a zigzag varlong, exact as a double up to 7 bytes (49 bits)
-    let tsRaw = 0;
-    let scale = 1;
-    let bytes = 0;
-    do {
-      if (p >= recordEnd || ++bytes > 7) return NOT_PLAIN;
-      b = buf[p++] as number;
-      tsRaw += (b & 0x7f) * scale;
-      scale *= 128;
-    } while (b >= 0x80);
-    const tsDelta = tsRaw % 2 === 1 ? -(tsRaw + 1) / 2 : tsRaw / 2;
-    shift = 0;
-    raw = 0;
-    do {
-      if (p >= recordEnd) return NOT_PLAIN;
-      b = buf[p++] as number;
-      raw += (b & 0x7f) << shift;
-      shift += 7;
-    } while (b >= 0x80);
-    const offsetDelta = (raw >>> 1) ^ -(raw & 1);
-    let key: Buffer | null = null;
-    let value: Buffer | null = null;
-    for (let f = 0; f < 2; f++) {
-      shift = 0;
-      raw = 0;
-      do {
-        if (p >= recordEnd) return NOT_PLAIN;
-        b = buf[p++] as number;
-        raw += (b & 0x7f) << shift;
-        shift += 7;
-      } while (b >= 0x80);
-      const n = (raw >>> 1) ^ -(raw & 1);
-      let bytesOf: Buffer | null = null;
-      if (n !== -1) {
-        if (n < 0 || p + n > recordEnd) return NOT_PLAIN;
-        bytesOf = buf.subarray(p, p + n);
-        p += n;
-      }
-      if (f === 0) key = bytesOf;
-      else value = bytesOf;
-    }
+    cursor = p;
+    const length = zigzag32(buf, end);
+    const recordEnd = cursor + length;
+    if (Number.isNaN(length) || length < 0 || recordEnd > end) return NOT_PLAIN;
+    const recordAttributes = buf.readInt8(cursor++);
+    const tsDelta = zigzag49(buf, recordEnd);
+    const offsetDelta = zigzag32(buf, recordEnd);
+    const key = varBytes(buf, recordEnd);
+    const value = varBytes(buf, recordEnd);
+    if (Number.isNaN(tsDelta) || Number.isNaN(offsetDelta) || key === undefined || value === undefined)
+      return NOT_PLAIN;
+    p = cursor;
     // headers: only none (count 0, or -1 which kafkajs also reads as none)
     if (p >= recordEnd) return NOT_PLAIN;
     const headerCount = buf[p] as number;
@@ -241,10 +240,6 @@ export function fastDecodeMessages(
 let installed: boolean | undefined;
 let kept: DecodeMessages | undefined;
 
-function kafkajsRoot(): string {
-  return require.resolve('kafkajs/package.json').replace(/package\.json$/, '');
-}
-
 /** kafkajs's own decodeMessages (the one this module replaces, when it has). */
 export function kafkajsDecodeMessages(): DecodeMessages {
   return (
@@ -261,8 +256,7 @@ export function installFetchDecoder(): boolean {
   if (installed !== undefined) return installed;
   installed = false;
   const root = kafkajsRoot();
-  const pkg = require(root + 'package.json') as { version: string };
-  if (pkg.version !== KAFKAJS_VERSION) return false;
+  if (!isKnownKafkajs()) return false;
   const dir = root + 'src/protocol/requests/fetch/';
   for (const v of [4, 5, 6, 7, 8, 9, 10, 11]) {
     try {

@@ -2,6 +2,7 @@ import { createRequire } from 'node:module';
 import { afterEach, describe, expect, it, vi } from 'vitest';
 import { crc32c, encodePlainProduce, installProduceEncoder, isPlain } from './kafka-produce-encoder.ts';
 import type { ProduceArgs } from './kafka-produce-encoder.ts';
+import { rng, text } from './testing/random.ts';
 
 // The reference is kafkajs 2.2.4 itself: its own Produce v3 request encoder and CRC-32C, loaded
 // from node_modules by path (this test never installs the fast encoder into kafkajs).
@@ -22,23 +23,6 @@ async function reference(a: ProduceArgs): Promise<Buffer> {
   } finally {
     vi.restoreAllMocks();
   }
-}
-
-function rng(seed: number): () => number {
-  return () => {
-    seed = (Math.imul(seed, 1103515245) + 12345) >>> 0;
-    return seed / 2 ** 32;
-  };
-}
-
-function text(r: () => number, len: number): string {
-  let s = '';
-  for (let i = 0; i < len; i++) {
-    const c = r();
-    // ASCII mostly, some two-, three- and four-byte UTF-8
-    s += c < 0.85 ? String.fromCharCode(32 + Math.floor(r() * 95)) : c < 0.93 ? 'é' : c < 0.98 ? '€' : '🦊';
-  }
-  return s;
 }
 
 afterEach(() => vi.restoreAllMocks());

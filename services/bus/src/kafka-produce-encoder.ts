@@ -11,10 +11,9 @@
 // per-message timestamp, keys and values strings or Buffers. Any other request is handed to
 // kafkajs's own encoder unchanged. It is installed into kafkajs's module cache, so it applies to
 // kafkajs 2.2.4 only (its internal layout), and only if no produce request was built before.
-import { createRequire } from 'node:module';
+import { isKnownKafkajs, kafkajsRequire, kafkajsRoot } from './kafkajs-internals.ts';
 
-const require = createRequire(import.meta.url);
-const KAFKAJS_VERSION = '2.2.4';
+const require = kafkajsRequire;
 
 // ---- CRC-32C (Castagnoli, reflected polynomial 0x82F63B78), slice-by-8 ----
 const CRC_TABLES = (() => {
@@ -152,10 +151,6 @@ function kafkajsLong(): { fromValue(v: number | string): unknown } {
   return longClass;
 }
 
-function kafkajsRoot(): string {
-  return require.resolve('kafkajs/package.json').replace(/package\.json$/, '');
-}
-
 /**
  * The Produce v3 request body, as kafkajs writes it for a plain request (see isPlain): the batch
  * timestamps are `nowMs`, as kafkajs stamps messages that carry none.
@@ -258,8 +253,7 @@ export function installProduceEncoder(): boolean {
   if (installed !== undefined) return installed;
   installed = false;
   const root = kafkajsRoot();
-  const pkg = require(root + 'package.json') as { version: string };
-  if (pkg.version !== KAFKAJS_VERSION) return false;
+  if (!isKnownKafkajs()) return false;
   const dir = root + 'src/protocol/requests/produce/';
   // v4-v7 capture v3 when first loaded: too late once any of them is.
   for (const v of [4, 5, 6, 7]) if (require.cache[require.resolve(`${dir}v${v}/request.js`)]) return false;
