@@ -7,7 +7,7 @@
 // method) is kafkajs's own: the replacement shares Batch's prototype. It must be in kafkajs's
 // module cache before kafkajs's consumer loads (kafkajs-fast-paths.ts is imported ahead of
 // kafkajs); if kafkajs was loaded first, or is another version, it stays out.
-import { isKnownKafkajs, kafkajsRequire, kafkajsRoot } from './kafkajs-internals.ts';
+import { kafkajsRequire, kafkajsRoot, replaceKafkajsModule } from './kafkajs-internals.ts';
 
 const require = kafkajsRequire;
 
@@ -82,17 +82,15 @@ let installed: boolean | undefined;
 /** True when the fast Batch is in place; false when kafkajs's consumer was loaded before, or kafkajs is another version. */
 export function installFastBatch(): boolean {
   if (installed !== undefined) return installed;
-  installed = false;
   const root = kafkajsRoot();
-  if (!isKnownKafkajs()) return false;
-  if (require.cache[require.resolve(root + 'src/consumer/consumerGroup.js')]) return false;
-  const path = require.resolve(root + 'src/consumer/batch.js');
-  const Batch = require(path) as { prototype: object };
-  const Long = require(root + 'src/utils/long.js') as LongClass;
-  const filterAborted = require(root + 'src/consumer/filterAbortedMessages.js') as FilterAborted;
-  const cached = require.cache[path];
-  if (!cached) return false;
-  cached.exports = fastBatchClass(Batch, Long, filterAborted);
-  installed = true;
-  return true;
+  installed = replaceKafkajsModule<{ prototype: object }>(
+    'src/consumer/batch.js',
+    ['src/consumer/consumerGroup.js'],
+    (Batch) => {
+      const Long = require(root + 'src/utils/long.js') as LongClass;
+      const filterAborted = require(root + 'src/consumer/filterAbortedMessages.js') as FilterAborted;
+      return fastBatchClass(Batch, Long, filterAborted) as unknown as { prototype: object };
+    },
+  );
+  return installed;
 }

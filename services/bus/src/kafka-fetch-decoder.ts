@@ -14,7 +14,7 @@
 // a batch whose bytes do not parse as expected. It is installed into kafkajs's module cache, so it
 // applies to kafkajs 2.2.4 only (its internal layout), and only if no fetch response was decoded
 // before.
-import { isKnownKafkajs, kafkajsRequire, kafkajsRoot } from './kafkajs-internals.ts';
+import { kafkajsRequire, kafkajsRoot, replaceKafkajsModule } from './kafkajs-internals.ts';
 
 const require = kafkajsRequire;
 
@@ -254,25 +254,19 @@ export function kafkajsDecodeMessages(): DecodeMessages {
  */
 export function installFetchDecoder(): boolean {
   if (installed !== undefined) return installed;
-  installed = false;
+  const dir = 'src/protocol/requests/fetch/';
   const root = kafkajsRoot();
-  if (!isKnownKafkajs()) return false;
-  const dir = root + 'src/protocol/requests/fetch/';
-  for (const v of [4, 5, 6, 7, 8, 9, 10, 11]) {
-    try {
-      if (require.cache[require.resolve(`${dir}v${v}/response.js`)]) return false;
-    } catch {
-      // a version kafkajs does not have
-    }
-  }
-  const path = require.resolve(`${dir}v4/decodeMessages.js`);
-  const original = require(path) as DecodeMessages;
-  const recordBatchDecoder = require(root + 'src/protocol/recordBatch/v0/decoder.js') as RecordBatchDecoder;
-  const Decoder = require(root + 'src/protocol/decoder.js') as DecoderClass;
-  const cached = require.cache[path];
-  if (!cached) return false;
-  kept = original;
-  cached.exports = fastDecodeMessages(original, recordBatchDecoder, Decoder);
-  installed = true;
-  return true;
+  installed = replaceKafkajsModule<DecodeMessages>(
+    `${dir}v4/decodeMessages.js`,
+    [4, 5, 6, 7, 8, 9, 10, 11].map((v) => `${dir}v${v}/response.js`),
+    (original) => {
+      kept = original;
+      const recordBatchDecoder = require(
+        root + 'src/protocol/recordBatch/v0/decoder.js',
+      ) as RecordBatchDecoder;
+      const Decoder = require(root + 'src/protocol/decoder.js') as DecoderClass;
+      return fastDecodeMessages(original, recordBatchDecoder, Decoder);
+    },
+  );
+  return installed;
 }

@@ -11,7 +11,7 @@
 // per-message timestamp, keys and values strings or Buffers. Any other request is handed to
 // kafkajs's own encoder unchanged. It is installed into kafkajs's module cache, so it applies to
 // kafkajs 2.2.4 only (its internal layout), and only if no produce request was built before.
-import { isKnownKafkajs, kafkajsRequire, kafkajsRoot } from './kafkajs-internals.ts';
+import { kafkajsRequire, kafkajsRoot, replaceKafkajsModule } from './kafkajs-internals.ts';
 
 const require = kafkajsRequire;
 
@@ -251,26 +251,25 @@ let installed: boolean | undefined;
  */
 export function installProduceEncoder(): boolean {
   if (installed !== undefined) return installed;
-  installed = false;
+  const dir = 'src/protocol/requests/produce/';
   const root = kafkajsRoot();
-  if (!isKnownKafkajs()) return false;
-  const dir = root + 'src/protocol/requests/produce/';
-  // v4-v7 capture v3 when first loaded: too late once any of them is.
-  for (const v of [4, 5, 6, 7]) if (require.cache[require.resolve(`${dir}v${v}/request.js`)]) return false;
-  const v3Path = require.resolve(`${dir}v3/request.js`);
-  const original = require(v3Path) as RequestFactory;
-  const Encoder = require(root + 'src/protocol/encoder.js') as new () => { writeBuffer(b: Buffer): unknown };
-  const fast: RequestFactory = (args) => {
-    const request = original(args);
-    if (!isPlain(args)) return request;
-    return {
-      ...request,
-      encode: async () => new Encoder().writeBuffer(encodePlainProduce(args, Date.now())),
-    };
-  };
-  const cached = require.cache[v3Path];
-  if (!cached) return false;
-  cached.exports = fast;
-  installed = true;
-  return true;
+  installed = replaceKafkajsModule<RequestFactory>(
+    `${dir}v3/request.js`,
+    // v4-v7 capture v3 when first loaded
+    [4, 5, 6, 7].map((v) => `${dir}v${v}/request.js`),
+    (original) => {
+      const Encoder = require(root + 'src/protocol/encoder.js') as new () => {
+        writeBuffer(b: Buffer): unknown;
+      };
+      return (args) => {
+        const request = original(args);
+        if (!isPlain(args)) return request;
+        return {
+          ...request,
+          encode: async () => new Encoder().writeBuffer(encodePlainProduce(args, Date.now())),
+        };
+      };
+    },
+  );
+  return installed;
 }
