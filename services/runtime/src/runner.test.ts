@@ -365,9 +365,17 @@ describe('EngineRunner', () => {
     await new Promise((r) => setTimeout(r, 5));
     expect(errors).toEqual(['exposure flush: broker away']);
     expect(acked).toBe(false);
+    // a tick arriving while the failed flush waits for its retry
+    now = 10;
+    const later = await runner.handleUntilAcked([{ topic: 'spots', ...spot('BX', 2, 10) }]);
     now = 25;
     await got.outputsAcked; // the retry one interval later carries them
-    expect(runner.stats().exposuresPublished).toBe(2);
+    await later.outputsAcked;
+    // AX's node, BX's node and the node they share, once each (latest wins)
+    expect(runner.stats().exposuresPublished).toBe(3);
+    // both ticks' latencies, to the retry that published them: 25 - 0 and 25 - 10 ms
+    expect(runner.latency.count).toBe(2);
+    expect(runner.latency.percentiles([0, 1])).toEqual([15, 25]);
     await bus.close();
   });
 

@@ -114,23 +114,29 @@ export interface RunnerStats {
 }
 
 /**
- * Accepted spots of one applied batch, or waiting for a flush: parallel arrays rather than an
- * object per tick (there are tens of thousands a second).
+ * Accepted spots of one applied batch, or waiting for a flush: columns rather than an object per
+ * tick (there are hundreds of thousands a second in a catch-up), kept and refilled rather than
+ * allocated per batch.
  */
 class TickLog {
+  length = 0;
   underlying: string[] = [];
-  tickTsMs: number[] = [];
+  tickTsMs = new Float64Array(1024);
   /** NaN: the transport gave no timestamp. */
-  busTsMs: number[] = [];
-
-  get length(): number {
-    return this.underlying.length;
-  }
+  busTsMs = new Float64Array(1024);
 
   push(underlying: string, tickTsMs: number, busTsMs: number): void {
-    this.underlying.push(underlying);
-    this.tickTsMs.push(tickTsMs);
-    this.busTsMs.push(busTsMs);
+    const n = this.length;
+    if (n === this.tickTsMs.length) this.grow(2 * n);
+    this.underlying[n] = underlying;
+    this.tickTsMs[n] = tickTsMs;
+    this.busTsMs[n] = busTsMs;
+    this.length = n + 1;
+  }
+
+  /** Empty, keeping its room (the underlying names it still refers to are the engine's own). */
+  clear(): void {
+    this.length = 0;
   }
 
   /** Appends the ticks of `from` whose underlying is in `keep`. */
@@ -143,11 +149,28 @@ class TickLog {
 
   /** `before` first, then these. */
   prepend(before: TickLog): void {
-    this.underlying = before.underlying.concat(this.underlying);
-    this.tickTsMs = before.tickTsMs.concat(this.tickTsMs);
-    this.busTsMs = before.busTsMs.concat(this.busTsMs);
+    const n = this.length;
+    const total = before.length + n;
+    if (total > this.tickTsMs.length) this.grow(total);
+    this.tickTsMs.copyWithin(before.length, 0, n);
+    this.busTsMs.copyWithin(before.length, 0, n);
+    this.tickTsMs.set(before.tickTsMs.subarray(0, before.length));
+    this.busTsMs.set(before.busTsMs.subarray(0, before.length));
+    this.underlying = before.underlying.slice(0, before.length).concat(this.underlying.slice(0, n));
+    this.length = total;
+  }
+
+  private grow(capacity: number): void {
+    const t = new Float64Array(capacity);
+    const b = new Float64Array(capacity);
+    t.set(this.tickTsMs.subarray(0, this.length));
+    b.set(this.busTsMs.subarray(0, this.length));
+    this.tickTsMs = t;
+    this.busTsMs = b;
   }
 }
+
+const NO_TICKS = new TickLog();
 
 export class EngineRunner {
   readonly latency: LatencyWindow;
@@ -167,6 +190,10 @@ export class EngineRunner {
   private pending = new Map<string, PendingExposure>();
   /** Ticks whose exposures wait in `pending`; their latency is taken when that flush is acked. */
   private pendingTicks = new TickLog();
+  /** The log a finished flush handed back, refilled as the next pendingTicks. */
+  private spareTicks = new TickLog();
+  /** The applied batch's ticks, refilled by every batch (collect takes them at once). */
+  private readonly batchTicks = new TickLog();
   private lastFlushAt = Number.NEGATIVE_INFINITY;
   private flushTimer: NodeJS.Timeout | null = null;
   private decayTimer: NodeJS.Timeout | null = null;
@@ -283,7 +310,8 @@ export class EngineRunner {
   private applyBatch(chunks: readonly (readonly BusRecord[])[]): { out: Drained; ticks: TickLog } {
     const t0 = performance.now();
     const plan = planBatch(chunks);
-    const ticks = new TickLog();
+    const ticks = this.batchTicks;
+    ticks.clear();
     this.counters.batches++;
     this.counters.records += plan.size;
     this.counters.conflated += plan.conflated;
@@ -402,7 +430,7 @@ export class EngineRunner {
       this.settle();
       this.engine.revalueAll();
       this.counters.decayRuns++;
-      this.collect(this.drainEngine(), new TickLog());
+      this.collect(this.drainEngine(), NO_TICKS);
       await this.release();
     } catch (err) {
       this.counters.internalErrors++;
@@ -516,7 +544,8 @@ export class EngineRunner {
     const entries = [...this.pending.values()];
     const ticks = this.pendingTicks;
     this.pending = new Map();
-    this.pendingTicks = new TickLog();
+    this.pendingTicks = this.spareTicks;
+    this.pendingTicks.clear();
     // A source is read now, at its latest value: the value every exposure it superseded would have
     // been replaced by anyway (latest wins). Message objects are only built for a listener.
     const wantObjects = this.opts.onPublished !== undefined;
@@ -541,6 +570,8 @@ export class EngineRunner {
         if (!this.pending.has(key)) this.pending.set(key, e);
       }
       this.pendingTicks.prepend(ticks);
+      ticks.clear();
+      this.spareTicks = ticks;
       this.retryLater(waiters);
       throw err;
     }
@@ -560,6 +591,8 @@ export class EngineRunner {
         metrics?.tickToPublish(tickTs, wall);
         if (!Number.isNaN(busTs)) metrics?.busToPublish(busTs, wall);
       }
+    ticks.clear();
+    this.spareTicks = ticks;
     this.counters.exposuresPublished += entries.length;
     this.opts.onPublished?.({ exposures, alerts: [], rejected: [] });
     for (const w of waiters) w();
