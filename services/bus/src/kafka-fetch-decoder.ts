@@ -108,14 +108,70 @@ function zigzag49(buf: Buffer, end: number): number {
   return raw % 2 === 1 ? -(raw + 1) / 2 : raw / 2;
 }
 
-/** Varint-length bytes (null for length -1); undefined when they do not fit before `end`. */
-function varBytes(buf: Buffer, end: number): Buffer | null | undefined {
+/** End of the bytes whose start `varSpan` returned last. */
+let spanEnd = 0;
+
+/**
+ * Start of varint-length bytes at `cursor` (they end at `spanEnd`): -1 for none (length -1), -2
+ * when they do not fit before `end`.
+ */
+function varSpan(buf: Buffer, end: number): number {
   const n = zigzag32(buf, end);
-  if (n === -1) return null;
-  if (Number.isNaN(n) || n < 0 || cursor + n > end) return undefined;
-  const bytes = buf.subarray(cursor, cursor + n);
+  if (n === -1) return -1;
+  if (Number.isNaN(n) || n < 0 || cursor + n > end) return -2;
+  const start = cursor;
   cursor += n;
-  return bytes;
+  spanEnd = cursor;
+  return start;
+}
+
+/**
+ * A record of a plain batch: kafkajs's message, except that its key, value and headers are made
+ * when read. A reader that wants text (`keyText`, `valueText`, `timestampMs`: the bus's records)
+ * never has a Buffer view, a header object or a timestamp string made for it.
+ */
+export class PlainMessage implements FetchedMessage {
+  constructor(
+    readonly magicByte: number,
+    readonly attributes: number,
+    /** The record's timestamp in ms since the epoch (exact: the batch's are below 2^52). */
+    readonly timestampMs: number,
+    /** kafkajs's text of a log-append time (the batch's max timestamp), else undefined. */
+    private readonly timestampText: string | undefined,
+    readonly offset: string,
+    readonly isControlRecord: boolean,
+    readonly batchContext: BatchContext,
+    private readonly buf: Buffer,
+    private readonly keyStart: number,
+    private readonly keyEnd: number,
+    private readonly valueStart: number,
+    private readonly valueEnd: number,
+  ) {}
+
+  get timestamp(): string {
+    return this.timestampText ?? String(this.timestampMs);
+  }
+
+  get key(): Buffer | null {
+    return this.keyStart < 0 ? null : this.buf.subarray(this.keyStart, this.keyEnd);
+  }
+
+  get value(): Buffer | null {
+    return this.valueStart < 0 ? null : this.buf.subarray(this.valueStart, this.valueEnd);
+  }
+
+  /** The plain case has no headers. */
+  get headers(): Record<string, unknown> {
+    return {};
+  }
+
+  keyText(): string | null {
+    return this.keyStart < 0 ? null : this.buf.toString('utf8', this.keyStart, this.keyEnd);
+  }
+
+  valueText(): string | null {
+    return this.valueStart < 0 ? null : this.buf.toString('utf8', this.valueStart, this.valueEnd);
+  }
 }
 
 /**
@@ -134,6 +190,7 @@ export function decodePlainBatch(buf: Buffer, start: number, end: number): Fetch
   const magicByte = buf.readInt8(start + 16);
   const timestampType = (attributes & TIMESTAMP_TYPE_FLAG) > 0 ? LOG_APPEND_TIME : CREATE_TIME;
   const maxTimestamp = maxTimestampBig.toString();
+  const maxTimestampN = Number(maxTimestampBig);
   const context: BatchContext = {
     firstOffset: firstOffsetBig.toString(),
     firstTimestamp: firstTimestampBig.toString(),
@@ -165,9 +222,11 @@ export function decodePlainBatch(buf: Buffer, start: number, end: number): Fetch
     const recordAttributes = buf.readInt8(cursor++);
     const tsDelta = zigzag49(buf, recordEnd);
     const offsetDelta = zigzag32(buf, recordEnd);
-    const key = varBytes(buf, recordEnd);
-    const value = varBytes(buf, recordEnd);
-    if (Number.isNaN(tsDelta) || Number.isNaN(offsetDelta) || key === undefined || value === undefined)
+    const keyStart = varSpan(buf, recordEnd);
+    const keyEnd = spanEnd;
+    const valueStart = varSpan(buf, recordEnd);
+    const valueEnd = spanEnd;
+    if (Number.isNaN(tsDelta) || Number.isNaN(offsetDelta) || keyStart === -2 || valueStart === -2)
       return NOT_PLAIN;
     p = cursor;
     // headers: only none (count 0, or -1 which kafkajs also reads as none)
@@ -175,17 +234,20 @@ export function decodePlainBatch(buf: Buffer, start: number, end: number): Fetch
     const headerCount = buf[p] as number;
     if (headerCount !== 0 && headerCount !== 1) return NOT_PLAIN;
     p = recordEnd;
-    out[i] = {
+    out[i] = new PlainMessage(
       magicByte,
-      attributes: recordAttributes,
-      timestamp: logAppend ? maxTimestamp : String(firstTimestampN + tsDelta),
-      offset: String(firstOffsetN + offsetDelta),
-      key,
-      value,
-      headers: {},
-      isControlRecord: isControl,
-      batchContext: context,
-    };
+      recordAttributes,
+      logAppend ? maxTimestampN : firstTimestampN + tsDelta,
+      logAppend ? maxTimestamp : undefined,
+      String(firstOffsetN + offsetDelta),
+      isControl,
+      context,
+      buf,
+      keyStart,
+      keyEnd,
+      valueStart,
+      valueEnd,
+    );
   }
   return out;
 }

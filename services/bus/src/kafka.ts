@@ -20,6 +20,7 @@ import type {
 import type { Bus, BusRecord, OutRecord } from './bus.ts';
 import { describeKafkaConfig, KafkaConfigError, resolveConnection } from './kafka-config.ts';
 import { javaPartition, memoizedJavaPartitioner } from './kafka-partition.ts';
+import { PlainMessage } from './kafka-fetch-decoder.ts';
 import type { KafkaConnection, KafkaSasl } from './kafka-config.ts';
 
 const { Kafka, Partitioners, logLevel, CompressionTypes } = kafkajs;
@@ -853,6 +854,16 @@ export class KafkaBus implements Bus {
   }
 
   private toRecord(topic: string, partition: number, m: KafkaMessage): BusRecord {
+    // A record our fetch decoder read: its text straight from the fetched bytes.
+    if (m instanceof PlainMessage)
+      return {
+        topic,
+        partition,
+        offset: m.offset,
+        key: m.keyText(),
+        value: m.valueText() ?? '',
+        timestamp: m.timestampMs,
+      };
     return {
       topic,
       partition,
