@@ -8,7 +8,7 @@
 //     underlying's exposure valued after it.
 // Book: the engine benchmark's 100 000 positions over 500 underlyings (tests/bench/book.ts), the
 // book the targets name. `npm run bench -- kafka`. Tuning: BENCH_TICKS (the drain's backlog),
-// BENCH_DRAIN_ROUNDS, BENCH_RATE, BENCH_LATENCY_INTERVALS (ms, comma-separated). Looking inside:
+// BENCH_DRAIN_ROUNDS, BENCH_RATE, BENCH_STEP_MS, BENCH_LATENCY_INTERVALS (ms, comma-separated). Looking inside:
 // BENCH_CPU_PROF=DIR (a V8 CPU profile of each engine run), BENCH_ENGINE_NODE_ARGS (e.g.
 // --trace-gc), BENCH_ENGINE_LOG=FILE (the last engine's log), BENCH_LAT_DUMP=FILE (one line per
 // measured tick: publish time, total, and the three parts, partition).
@@ -30,6 +30,7 @@ const RATE = Number(process.env.BENCH_RATE ?? 10_000);
 const PUBLISH_MS = 100;
 const LATENCY_INTERVALS = (process.env.BENCH_LATENCY_INTERVALS ?? '100,20').split(',').map(Number);
 const DRAIN_ROUNDS = Number(process.env.BENCH_DRAIN_ROUNDS ?? 5);
+const STEP_MS = Number(process.env.BENCH_STEP_MS ?? 50);
 const LATENCY_SECONDS = 10;
 const WARMUP_SECONDS = 2;
 
@@ -272,11 +273,15 @@ await reader.subscribe(
 );
 await new Promise((r) => setTimeout(r, 3000)); // the reader joins its group
 
-// Ticks in steps of 50 ms, one per underlying in each step at the default rate.
+// Ticks in steps of STEP_MS on a fixed schedule (a late step does not shift the ones after it),
+// cycling through the underlyings: at the default rate and step, 500 ticks every 50 ms, each
+// underlying once a step. BENCH_STEP_MS=10 spreads the same rate over 100 ticks every 10 ms: the
+// engine then flushes more often with fewer ticks each, and publishes more exposures in all.
 async function stream(seconds: number): Promise<void> {
-  const perStep = Math.max(1, Math.round(RATE / 20));
-  for (let s = 0; s < seconds * 20; s++) {
-    const stepStart = Date.now();
+  const perStep = Math.max(1, Math.round((RATE * STEP_MS) / 1000));
+  const steps = Math.round((seconds * 1000) / STEP_MS);
+  const start = Date.now();
+  for (let s = 0; s < steps; s++) {
     const batch: InputMsg[] = [];
     for (let i = 0; i < perStep; i++) {
       const m = tick(Date.now());
@@ -289,7 +294,7 @@ async function stream(seconds: number): Promise<void> {
       'spots',
       batch.map((m) => ({ key: inputKey(m), value: JSON.stringify(m) })),
     );
-    await new Promise((r) => setTimeout(r, Math.max(0, 50 - (Date.now() - stepStart))));
+    await new Promise((r) => setTimeout(r, Math.max(0, start + (s + 1) * STEP_MS - Date.now())));
   }
 }
 
@@ -339,7 +344,7 @@ console.log(
 );
 for (const [ms, l] of latencies) {
   console.log(
-    `tick-to-exposure at ${RATE} ticks/s for ${LATENCY_SECONDS}s, publish interval ${ms} ms: p50 ${pctOf(l.total, 50)} ms, p99 ${pctOf(l.total, 99)} ms, max ${l.total.at(-1)} ms over ${l.total.length} ticks`,
+    `tick-to-exposure at ${RATE} ticks/s (every ${STEP_MS} ms) for ${LATENCY_SECONDS}s, publish interval ${ms} ms: p50 ${pctOf(l.total, 50)} ms, p99 ${pctOf(l.total, 99)} ms, max ${l.total.at(-1)} ms over ${l.total.length} ticks`,
   );
   console.log(
     `  p50 / p99 of tick to valuation ${both(l.toValued)} ms, valuation to produce ${both(l.valuedToProduced)} ms, produce to reader ${both(l.producedToRead)} ms`,
