@@ -193,15 +193,19 @@ const decoderRate = (await bareDrain('keelson-paths')).rate;
 // 2. The engine: restart, rebuild (the book), then drain the tick backlog live; in rounds that
 //    alternate with the bare consumer, because the machine's load moves both from one second to the
 //    next. Each round starts the engine's group where the bootstrap left it, before the backlog.
-const [bootOffsets] = await admin.fetchOffsets({ groupId: group, topics: [prefix + 'spots'] });
-async function engineDrain(): Promise<number> {
-  await admin.setOffsets({ groupId: group, topic: prefix + 'spots', partitions: bootOffsets!.partitions });
-  engine = startEngine(group, PUBLISH_MS);
+/** The engine restarted with this publish interval, once it has rebuilt from the topics. */
+async function startLive(publishIntervalMs: number): Promise<void> {
+  engine = startEngine(group, publishIntervalMs);
   await waitFor(
     'the engine to rebuild the book and go live',
     () => /rebuilt from the topics; live/.test(engine.log()),
     300_000,
   );
+}
+const [bootOffsets] = await admin.fetchOffsets({ groupId: group, topics: [prefix + 'spots'] });
+async function engineDrain(): Promise<number> {
+  await admin.setOffsets({ groupId: group, topic: prefix + 'spots', partitions: bootOffsets!.partitions });
+  await startLive(PUBLISH_MS);
   const liveAt = performance.now();
   await waitFor(
     'the engine to drain the ticks',
@@ -217,9 +221,10 @@ for (let k = 0; k < DRAIN_ROUNDS; k++) {
   const bare = (await bareDrain('bare')).rate;
   rounds.push({ bare, engine: await engineDrain() });
 }
+const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)]!;
 const ratios = rounds.map((r) => r.engine / r.bare).sort((a, b) => a - b);
-const medianRatio = ratios[Math.floor(ratios.length / 2)]!;
-const bareRate = rounds.map((r) => r.bare).sort((a, b) => a - b)[Math.floor(rounds.length / 2)]!;
+const medianRatio = median(ratios);
+const bareRate = median(rounds.map((r) => r.bare));
 
 // 3. Latency at a steady rate, once per publish interval in LATENCY_INTERVALS: the engine
 //    restarted (rebuilt) with that interval each time, the same reader throughout.
@@ -303,12 +308,7 @@ async function stream(seconds: number): Promise<void> {
 }
 
 async function measureLatency(intervalMs: number): Promise<Latencies> {
-  engine = startEngine(group, intervalMs);
-  await waitFor(
-    'the engine to rebuild the book and go live',
-    () => /rebuilt from the topics; live/.test(engine.log()),
-    300_000,
-  );
+  await startLive(intervalMs);
   pending = new Map();
   sample = { total: [], toValued: [], valuedToProduced: [], producedToRead: [] };
   // This process is the load generator and the reader: a major collection of its heap (it held
